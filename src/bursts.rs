@@ -1,0 +1,189 @@
+//! Bursts: marks grouped into presses at long silences.
+//!
+//! A burst closes when the silence after its last mark exceeds
+//! `max(min_gap, gap_factor × longest space inside the burst)`. Repeats of a frame are
+//! separated by sync spaces of tens of units; presses by far more, so the default `min_gap`
+//! of 80 ms keeps a press whole for units up to about 2.5 ms (31-unit sync spaces) while
+//! separating presses a human makes. Bursts with fewer than `min_marks` marks are dropped as
+//! noise.
+//!
+//! ```
+//! use ooksift::bursts::{BurstConfig, BurstSplitter};
+//! use ooksift::edges::Mark;
+//! let mk = |r: f64| Mark { rise: r, fall: r + 10.0, level: 1.0, noise: 0.01, lag: Default::default() };
+//! let mut split = BurstSplitter::new(BurstConfig { min_gap: 1000.0, gap_factor: 3.0, min_marks: 2, max_marks: 100 });
+//! let mut out = Vec::new();
+//! for r in [0.0, 30.0, 60.0, 5000.0, 5030.0] { split.push(mk(r), &mut out); }
+//! split.finish(&mut out);
+//! assert_eq!(out.len(), 2);
+//! assert_eq!(out[0].marks.len(), 3);
+//! ```
+
+use crate::edges::Mark;
+
+/// One press: marks separated by no silence longer than the burst gap.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Burst {
+    /// The marks, in capture-sample positions.
+    pub marks: Vec<Mark>,
+    /// Marks were dropped because the burst reached `max_marks`.
+    pub capped: bool,
+}
+
+impl Burst {
+    /// Position of the first rising edge.
+    pub fn start(&self) -> f64 {
+        self.marks.first().map_or(0.0, |m| m.rise)
+    }
+
+    /// Position of the last falling edge.
+    pub fn end(&self) -> f64 {
+        self.marks.last().map_or(0.0, |m| m.fall)
+    }
+}
+
+/// Removes glitches relative to the burst's own timing: a space or mark shorter than
+/// `fraction` × the burst's width-weighted median element (marks and spaces alike) is noise —
+/// a dip inside a mark, or a spike inside a space. Dips are bridged (the two marks become
+/// one); spikes are dropped. Returns how many glitches were removed.
+///
+/// Weighting by width makes the reference a typical element's width (about one to three
+/// units) however many glitches there are, since glitches are short.
+pub fn merge_glitches(marks: &mut Vec<Mark>, fraction: f64) -> usize {
+    if marks.len() < 3 {
+        return 0;
+    }
+    let mut w: Vec<f64> = marks.iter().map(Mark::width).collect();
+    w.extend(marks.windows(2).map(|p| p[1].rise - p[0].fall));
+    w.sort_by(f64::total_cmp);
+    let total: f64 = w.iter().sum();
+    let mut acc = 0.0;
+    let mut reference = w[w.len() - 1];
+    for &x in &w {
+        acc += x;
+        if acc >= total / 2.0 {
+            reference = x;
+            break;
+        }
+    }
+    let limit = fraction * reference;
+    let before = marks.len();
+    // Bridge dips first, so a long mark broken in pieces is whole before spikes are judged.
+    let mut out: Vec<Mark> = Vec::with_capacity(marks.len());
+    for m in marks.drain(..) {
+        match out.last_mut() {
+            Some(prev) if m.rise - prev.fall < limit => {
+                let (wa, wb) = (prev.width(), m.width());
+                prev.level = ((prev.level as f64 * wa + m.level as f64 * wb) / (wa + wb)) as f32;
+                prev.fall = m.fall;
+                prev.lag += m.lag;
+            }
+            _ => out.push(m),
+        }
+    }
+    out.retain(|m| m.width() >= limit);
+    *marks = out;
+    before - marks.len()
+}
+
+/// Tuning of [`BurstSplitter`], in capture samples.
+#[derive(Debug, Clone)]
+pub struct BurstConfig {
+    /// Silence that always ends a burst.
+    pub min_gap: f64,
+    /// Silence, in multiples of the longest space so far, that ends a burst when longer
+    /// than `min_gap`.
+    pub gap_factor: f64,
+    /// Bursts with fewer marks are noise.
+    pub min_marks: usize,
+    /// Marks kept per burst at most (a limit, reported when hit).
+    pub max_marks: usize,
+}
+
+impl BurstConfig {
+    /// Defaults for a capture at `rate_hz`: 80 ms minimum gap.
+    pub fn for_rate(rate_hz: f64) -> BurstConfig {
+        BurstConfig {
+            min_gap: 0.080 * rate_hz,
+            gap_factor: 3.0,
+            min_marks: 6,
+            max_marks: 20_000,
+        }
+    }
+}
+
+/// Streaming splitter of marks into bursts.
+#[derive(Debug, Clone)]
+pub struct BurstSplitter {
+    cfg: BurstConfig,
+    current: Vec<Mark>,
+    longest_space: f64,
+    capped: bool,
+}
+
+impl BurstSplitter {
+    /// An empty splitter.
+    pub fn new(cfg: BurstConfig) -> BurstSplitter {
+        BurstSplitter {
+            cfg,
+            current: Vec::new(),
+            longest_space: 0.0,
+            capped: false,
+        }
+    }
+
+    fn gap(&self) -> f64 {
+        self.cfg
+            .min_gap
+            .max(self.cfg.gap_factor * self.longest_space)
+    }
+
+    fn close(&mut self, out: &mut Vec<Burst>) {
+        let marks = std::mem::take(&mut self.current);
+        if marks.len() >= self.cfg.min_marks {
+            out.push(Burst {
+                marks,
+                capped: self.capped,
+            });
+        }
+        self.longest_space = 0.0;
+        self.capped = false;
+    }
+
+    /// Adds the next mark; a burst it ends is appended to `out`.
+    pub fn push(&mut self, m: Mark, out: &mut Vec<Burst>) {
+        if let Some(last) = self.current.last() {
+            let space = m.rise - last.fall;
+            if space > self.gap() {
+                self.close(out);
+            } else {
+                self.longest_space = self.longest_space.max(space);
+            }
+        }
+        if self.current.len() < self.cfg.max_marks {
+            self.current.push(m);
+        } else {
+            self.capped = true;
+        }
+    }
+
+    /// Tells the splitter that nothing happened up to `pos`; closes a burst whose silence
+    /// has grown past the gap (lets streams report presses as they end).
+    pub fn idle_until(&mut self, pos: f64, out: &mut Vec<Burst>) {
+        if let Some(last) = self.current.last() {
+            if pos - last.fall > self.gap() {
+                self.close(out);
+            }
+        }
+    }
+
+    /// Rising edge of the first mark of the burst in progress, if one is open.
+    pub fn open_start(&self) -> Option<f64> {
+        self.current.first().map(|m| m.rise)
+    }
+
+    /// Closes the last burst at the end of the capture.
+    pub fn finish(&mut self, out: &mut Vec<Burst>) {
+        self.close(out);
+    }
+}

@@ -1,0 +1,332 @@
+//! The decode pipeline: source → envelope → edges → bursts → line codes → frames → report.
+//!
+//! [`Decoder`] owns one instance of each streaming stage and carries their state between
+//! blocks; presses are decoded as their bursts close, so memory holds only marks of the press
+//! in progress and the (small) decoded presses.
+//!
+//! ```no_run
+//! use ooksift::decode::{decode_path, DecodeOptions};
+//! let report = decode_path("captures/harrowgate-gate.cu8", &DecodeOptions::default()).unwrap();
+//! for code in &report.codes {
+//!     println!("{} {} {}", code.key_id, code.line_code, code.hex);
+//! }
+//! ```
+
+use crate::bursts::{Burst, BurstConfig, BurstSplitter};
+use crate::coding;
+use num_complex::Complex32;
+use crate::edges::{EdgeConfig, EdgeDetector, Mark};
+use crate::frames::{self, PressDecode};
+use crate::front::envelope::{EnvelopeBlock, WideEnvelope};
+use crate::report::{CaptureSummary, CodeReport, DecodeReport, CAUTION};
+use crate::source::{self, CaptureInfo, OpenOptions, SampleSource, Samples, SourceError};
+
+/// Errors of the decode layer.
+#[derive(Debug, thiserror::Error)]
+#[non_exhaustive]
+pub enum DecodeError {
+    /// The capture could not be read.
+    #[error(transparent)]
+    Source(#[from] SourceError),
+}
+
+/// Options of a decode.
+#[derive(Debug, Clone)]
+pub struct DecodeOptions {
+    /// How to open the capture.
+    pub open: OpenOptions,
+    /// Highest envelope rate analysed; faster captures are integrated down to it.
+    pub max_envelope_rate_hz: f64,
+    /// Post-detection smoothing of the envelope, in µs (a moving average; 0 for none).
+    pub smooth_us: f64,
+    /// Silence that always separates presses (default 80 ms).
+    pub press_gap_ms: Option<f64>,
+    /// Presses kept at most (a limit reported when hit).
+    pub max_presses: usize,
+}
+
+impl Default for DecodeOptions {
+    fn default() -> Self {
+        DecodeOptions {
+            open: OpenOptions::default(),
+            max_envelope_rate_hz: 250_000.0,
+            smooth_us: 40.0,
+            press_gap_ms: None,
+            max_presses: 10_000,
+        }
+    }
+}
+
+/// The streaming pipeline for one capture.
+pub struct Decoder {
+    info: CaptureInfo,
+    env: WideEnvelope,
+    edges: EdgeDetector,
+    bursts: BurstSplitter,
+    env_block: EnvelopeBlock,
+    marks: Vec<Mark>,
+    closed: Vec<Burst>,
+    presses: Vec<PressDecode>,
+    /// Envelope kept for the second pass: from shortly before the open burst (or the last
+    /// `margin` samples when none is open). `hist[0]` is envelope sample `hist_start`.
+    hist: Vec<f32>,
+    lag_hist: Vec<Complex32>,
+    hist_start: u64,
+    margin: usize,
+    max_hist: usize,
+    env_rate: f64,
+    samples: u64,
+    undecoded: usize,
+    max_presses: usize,
+    notes: Vec<String>,
+}
+
+impl Decoder {
+    /// A pipeline tuned to the capture `info` describes.
+    pub fn new(info: CaptureInfo, opts: &DecodeOptions) -> Decoder {
+        let rate = info.rate.hz();
+        let decim = WideEnvelope::decimation_for(rate, opts.max_envelope_rate_hz);
+        let mut bcfg = BurstConfig::for_rate(rate);
+        if let Some(ms) = opts.press_gap_ms {
+            bcfg.min_gap = ms * rate / 1e3;
+        }
+        Decoder {
+            env: WideEnvelope::with_smoothing(
+                decim,
+                (opts.smooth_us * 1e-6 * rate / decim as f64).round() as usize,
+            ),
+            edges: EdgeDetector::new(EdgeConfig::for_rate(rate / decim as f64)),
+            bursts: BurstSplitter::new(bcfg),
+            env_block: EnvelopeBlock::default(),
+            marks: Vec::new(),
+            closed: Vec::new(),
+            presses: Vec::new(),
+            hist: Vec::new(),
+            lag_hist: Vec::new(),
+            hist_start: 0,
+            margin: ((rate / decim as f64) * 0.004) as usize + 16,
+            max_hist: ((rate / decim as f64) * 4.0) as usize + 4096,
+            env_rate: rate / decim as f64,
+            samples: 0,
+            undecoded: 0,
+            max_presses: opts.max_presses,
+            notes: Vec::new(),
+            info,
+        }
+    }
+
+    /// Feeds one block of samples.
+    pub fn push(&mut self, block: Samples<'_>) {
+        self.samples += block.len() as u64;
+        self.env_block.clear();
+        self.env.process(block, &mut self.env_block);
+        self.marks.clear();
+        self.edges
+            .process(&self.env_block.env, &self.env_block.lag, &mut self.marks);
+        self.hist.extend_from_slice(&self.env_block.env);
+        self.lag_hist.extend_from_slice(&self.env_block.lag);
+        self.route_marks();
+        if !self.edges.in_mark() {
+            let now = self.env.position_of(self.edges.position() as f64);
+            self.bursts.idle_until(now, &mut self.closed);
+        }
+        self.decode_closed();
+        self.trim_history();
+    }
+
+    /// Envelope index of capture position `pos` (inverse of `WideEnvelope::position_of`).
+    fn env_index(&self, pos: f64) -> f64 {
+        self.env.index_of(pos)
+    }
+
+    fn trim_history(&mut self) {
+        let keep_from = match self.bursts.open_start() {
+            Some(p) => (self.env_index(p).floor() as i64 - self.margin as i64).max(0) as u64,
+            None if self.edges.in_mark() => self.hist_start + self.hist.len() as u64,
+            None => (self.hist_start + self.hist.len() as u64).saturating_sub(self.margin as u64),
+        };
+        let keep_from = keep_from.max(
+            (self.hist_start + self.hist.len() as u64).saturating_sub(self.max_hist as u64),
+        );
+        // An open mark's own samples are still needed.
+        let keep_from = keep_from.min(self.hist_start + self.hist.len() as u64);
+        if keep_from > self.hist_start {
+            let n = ((keep_from - self.hist_start) as usize).min(self.hist.len());
+            self.hist.drain(..n);
+            let nl = n.min(self.lag_hist.len());
+            self.lag_hist.drain(..nl);
+            self.hist_start += n as u64;
+        }
+    }
+
+    /// Second pass over one burst: the envelope re-smoothed to about a third of the burst's
+    /// own short element, edges found again, and the press decoded from them. Returns `None`
+    /// when the history no longer holds the burst or the smoothing would not change.
+    fn reslice(&self, burst: &Burst) -> Option<PressDecode> {
+        let mut cleaned = burst.marks.clone();
+        crate::bursts::merge_glitches(&mut cleaned, frames::GLITCH_FRACTION);
+        let rough = coding::assess(&cleaned).into_iter().next()?;
+        let unit_env = rough.unit / self.env.decim() as f64;
+        let half = ((0.3 * unit_env) / 2.0).floor() as usize;
+        if half < 1 {
+            return None;
+        }
+        let a = (self.env_index(burst.start()).floor() as i64 - self.margin as i64).max(0) as u64;
+        let b = self.env_index(burst.end()).ceil() as u64 + self.margin as u64;
+        if a < self.hist_start {
+            return None;
+        }
+        let lo = (a - self.hist_start) as usize;
+        let hi = ((b.saturating_sub(self.hist_start)) as usize).min(self.hist.len());
+        if hi <= lo + 2 * half + 8 {
+            return None;
+        }
+        let smoothed = centred_average(&self.hist[lo..hi], half);
+        let lag = if self.lag_hist.len() >= hi {
+            &self.lag_hist[lo..hi]
+        } else {
+            &[][..]
+        };
+        let mut cfg = EdgeConfig::for_rate(self.env_rate);
+        cfg.warmup = (self.margin / 2).max(8);
+        let mut det = EdgeDetector::new(cfg);
+        let mut marks = Vec::new();
+        det.process(&smoothed, lag, &mut marks);
+        det.finish(&mut marks);
+        let marks: Vec<Mark> = marks
+            .into_iter()
+            .map(|m| Mark {
+                rise: self.env.position_of(m.rise + a as f64),
+                fall: self.env.position_of(m.fall + a as f64),
+                ..m
+            })
+            .collect();
+        frames::decode_press(&Burst {
+            marks,
+            capped: burst.capped,
+        })
+    }
+
+    fn route_marks(&mut self) {
+        for m in self.marks.drain(..) {
+            let mapped = Mark {
+                rise: self.env.position_of(m.rise),
+                fall: self.env.position_of(m.fall),
+                ..m
+            };
+            self.bursts.push(mapped, &mut self.closed);
+        }
+    }
+
+    fn decode_closed(&mut self) {
+        let closed = std::mem::take(&mut self.closed);
+        for b in closed {
+            if b.capped {
+                self.notes.push(format!(
+                    "a burst at {:.3} s reached the mark limit; its later marks were ignored",
+                    self.info.rate.to_s(b.start())
+                ));
+            }
+            let first = frames::decode_press(&b);
+            let second = self.reslice(&b);
+            if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+                let d = |p: &Option<PressDecode>| p.as_ref().map(|p| (p.frames.len(), p.partial_frames, frames::bit_string(&p.bits)));
+                eprintln!("burst {:.4}..{:.4} s, {} marks: first {:?} second {:?}", self.info.rate.to_s(b.start()), self.info.rate.to_s(b.end()), b.marks.len(), d(&first), d(&second));
+            }
+            match better(first, second) {
+                Some(p) if self.presses.len() < self.max_presses => self.presses.push(p),
+                Some(_) => {
+                    if !self.notes.iter().any(|n| n.starts_with("press limit")) {
+                        self.notes.push(format!(
+                            "press limit of {} reached; later presses were not kept",
+                            self.max_presses
+                        ));
+                    }
+                }
+                None => self.undecoded += 1,
+            }
+        }
+    }
+
+    /// Presses decoded so far (streams print them as they come).
+    pub fn presses(&self) -> &[PressDecode] {
+        &self.presses
+    }
+
+    /// Flushes the stages at the end of the capture and builds the report.
+    pub fn finish(mut self) -> DecodeReport {
+        self.marks.clear();
+        self.edges.finish(&mut self.marks);
+        self.route_marks();
+        self.bursts.finish(&mut self.closed);
+        self.decode_closed();
+        let rate = self.info.rate;
+        let base = self.info.is_iq().then_some(0.0);
+        let codes = frames::group(std::mem::take(&mut self.presses))
+            .iter()
+            .map(|g| CodeReport::from_group(g, rate, base))
+            .collect();
+        DecodeReport {
+            generator: format!("ooksift {}", env!("CARGO_PKG_VERSION")),
+            capture: CaptureSummary::new(&self.info, self.samples),
+            codes,
+            undecoded_bursts: self.undecoded,
+            notes: self.notes,
+            caution: CAUTION.to_string(),
+        }
+    }
+}
+
+/// A centred moving average of `2·half + 1` samples (shorter at the ends).
+fn centred_average(x: &[f32], half: usize) -> Vec<f32> {
+    let n = x.len();
+    let mut prefix = Vec::with_capacity(n + 1);
+    prefix.push(0.0f64);
+    for &v in x {
+        let last = prefix[prefix.len() - 1];
+        prefix.push(last + v as f64);
+    }
+    (0..n)
+        .map(|k| {
+            let lo = k.saturating_sub(half);
+            let hi = (k + half + 1).min(n);
+            ((prefix[hi] - prefix[lo]) / (hi - lo) as f64) as f32
+        })
+        .collect()
+}
+
+/// The better of two readings of one press: more full frames, then fewer corrected bits,
+/// then the higher score.
+fn better(a: Option<PressDecode>, b: Option<PressDecode>) -> Option<PressDecode> {
+    match (a, b) {
+        (Some(a), Some(b)) => {
+            let key = |p: &PressDecode| {
+                (
+                    p.frames.len(),
+                    std::cmp::Reverse(p.corrected_bits),
+                    (p.score * 1000.0) as i64,
+                )
+            };
+            Some(if key(&b) > key(&a) { b } else { a })
+        }
+        (a, b) => a.or(b),
+    }
+}
+
+/// Decodes every block of `src`.
+pub fn decode_source(
+    src: &mut dyn SampleSource,
+    opts: &DecodeOptions,
+) -> Result<DecodeReport, DecodeError> {
+    let mut dec = Decoder::new(src.info().clone(), opts);
+    while let Some(block) = src.next_block()? {
+        dec.push(block);
+    }
+    Ok(dec.finish())
+}
+
+/// Opens and decodes the capture at `path` (`-` for standard input).
+pub fn decode_path(path: &str, opts: &DecodeOptions) -> Result<DecodeReport, DecodeError> {
+    let mut src = source::open(path, &opts.open)?;
+    decode_source(src.as_mut(), opts)
+}

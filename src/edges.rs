@@ -1,0 +1,434 @@
+//! Edge detection: envelope samples in, timed marks out.
+//!
+//! The detector tracks the idle level (noise floor) and its spread, and recent mark levels.
+//! A mark starts when the envelope rises clearly above the floor (`on_sigma` spreads, or half
+//! the recent mark level, whichever is higher) and ends after `hold` samples below half of
+//! its own running level (hysteresis). Once a mark is complete its edges are placed where the
+//! envelope crosses the midpoint between the floor and the mark's own plateau, interpolated
+//! between samples, so thresholds never bias the measured widths.
+//!
+//! State is carried across blocks: the marks do not depend on how the envelope was cut.
+//!
+//! ```
+//! use ooksift::edges::{EdgeConfig, EdgeDetector};
+//! let mut det = EdgeDetector::new(EdgeConfig::for_rate(100_000.0));
+//! let mut env = vec![0.01f32; 2000];
+//! for x in &mut env[1000..1100] { *x = 1.0; }        // one 1 ms mark
+//! let mut marks = Vec::new();
+//! det.process(&env, &[], &mut marks);
+//! det.finish(&mut marks);
+//! assert_eq!(marks.len(), 1);
+//! assert!((marks[0].fall - marks[0].rise - 100.0).abs() < 1.0);
+//! ```
+
+use num_complex::{Complex32, Complex64};
+
+/// One mark (carrier on), in envelope-sample positions.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Mark {
+    /// Rising edge (sub-sample).
+    pub rise: f64,
+    /// Falling edge (sub-sample).
+    pub fall: f64,
+    /// Plateau level above the floor.
+    pub level: f32,
+    /// Idle noise spread (standard deviation estimate) when the mark started.
+    pub noise: f32,
+    /// Sum of lag-1 IQ products over the mark (zero for envelope input).
+    pub lag: Complex64,
+}
+
+impl Mark {
+    /// Width in envelope samples.
+    pub fn width(&self) -> f64 {
+        self.fall - self.rise
+    }
+}
+
+/// Tuning of [`EdgeDetector`], in envelope samples.
+#[derive(Debug, Clone)]
+pub struct EdgeConfig {
+    /// Rise above the floor needed to start a mark, in noise standard deviations.
+    pub on_sigma: f32,
+    /// Consecutive samples below the release level that end a mark.
+    pub hold: usize,
+    /// Marks holding fewer samples are dropped as spikes.
+    pub min_mark: usize,
+    /// Time constant of the floor and spread trackers.
+    pub floor_tau: f32,
+    /// Time constant with which the recent mark level fades in silence.
+    pub level_tau: f32,
+    /// Samples used to learn the floor before marks are looked for.
+    pub warmup: usize,
+    /// Samples kept before a mark's detection to place its rising edge.
+    pub history: usize,
+    /// A mark longer than this is cut (bounded memory with a continuous carrier).
+    pub max_mark: usize,
+}
+
+impl EdgeConfig {
+    /// Defaults for an envelope sampled at `rate_hz`.
+    pub fn for_rate(rate_hz: f64) -> EdgeConfig {
+        let per_ms = (rate_hz / 1000.0) as f32;
+        EdgeConfig {
+            on_sigma: 4.0,
+            hold: 2,
+            min_mark: 2,
+            floor_tau: (20.0 * per_ms).max(16.0),
+            level_tau: (30.0 * per_ms).max(16.0),
+            warmup: ((0.5 * per_ms) as usize).clamp(8, 4096),
+            history: 48,
+            max_mark: (rate_hz * 2.0) as usize,
+        }
+    }
+}
+
+/// Streaming edge detector (see the module docs).
+#[derive(Debug, Clone)]
+pub struct EdgeDetector {
+    cfg: EdgeConfig,
+    /// Absolute index of the next sample.
+    idx: u64,
+    floor: f32,
+    dev: f32,
+    seen: u64,
+    recent_level: f32,
+    ring: Vec<f32>,
+    in_mark: bool,
+    det: u64,
+    rise_buf: Vec<f32>,
+    rise_start: u64,
+    sum: f64,
+    cnt: u64,
+    lag_sum: Complex64,
+    below: usize,
+    first_below: u64,
+    noise_at_start: f32,
+    /// First sample that may serve as history for the next mark.
+    free_from: u64,
+}
+
+impl EdgeDetector {
+    /// A detector at the start of a capture.
+    pub fn new(cfg: EdgeConfig) -> EdgeDetector {
+        let k = cfg.history.max(4);
+        EdgeDetector {
+            ring: vec![0.0; k],
+            rise_buf: Vec::with_capacity(2 * k),
+            cfg,
+            idx: 0,
+            floor: 0.0,
+            dev: 0.0,
+            seen: 0,
+            recent_level: 0.0,
+            in_mark: false,
+            det: 0,
+            rise_start: 0,
+            sum: 0.0,
+            cnt: 0,
+            lag_sum: Complex64::new(0.0, 0.0),
+            below: 0,
+            first_below: 0,
+            noise_at_start: 0.0,
+            free_from: 0,
+        }
+    }
+
+    /// Forgets everything, as at the start of a new capture.
+    pub fn reset(&mut self) {
+        *self = EdgeDetector::new(self.cfg.clone());
+    }
+
+    /// Absolute index of the next envelope sample.
+    pub fn position(&self) -> u64 {
+        self.idx
+    }
+
+    /// Current floor (idle level) and noise standard deviation estimates.
+    pub fn floor_and_noise(&self) -> (f32, f32) {
+        (self.floor, self.sigma())
+    }
+
+    /// True while a mark is open.
+    pub fn in_mark(&self) -> bool {
+        self.in_mark
+    }
+
+    fn sigma(&self) -> f32 {
+        // Mean absolute deviation → standard deviation for Gaussian noise.
+        1.2533 * self.dev
+    }
+
+    fn ring_get(&self, i: u64) -> f32 {
+        self.ring[(i % self.ring.len() as u64) as usize]
+    }
+
+    /// Feeds envelope samples; completed marks are appended to `out`.
+    /// `lag` holds the lag-1 IQ products per sample, or is empty for envelope input.
+    pub fn process(&mut self, env: &[f32], lag: &[Complex32], out: &mut Vec<Mark>) {
+        let k = self.ring.len();
+        for (n, &x) in env.iter().enumerate() {
+            let i = self.idx;
+            self.ring[(i % k as u64) as usize] = x;
+            let l = lag
+                .get(n)
+                .map(|c| Complex64::new(c.re as f64, c.im as f64))
+                .unwrap_or_default();
+            if !self.in_mark {
+                self.idle_sample(i, x, l);
+            } else {
+                self.mark_sample(i, x, l, out);
+            }
+            self.idx += 1;
+        }
+    }
+
+    fn idle_sample(&mut self, i: u64, x: f32, l: Complex64) {
+        if self.seen < self.cfg.warmup as u64 {
+            self.seen += 1;
+            let a = 1.0 / self.seen as f32;
+            self.floor += a * (x - self.floor);
+            self.dev += a * ((x - self.floor).abs() - self.dev);
+            return;
+        }
+        let thr = self.floor + (self.cfg.on_sigma * self.sigma()).max(0.5 * self.recent_level);
+        if x > thr && x - self.floor > 1e-7 {
+            self.start_mark(i, x, l);
+            return;
+        }
+        // Robust tracking: a sample far above the floor (a weak mark not yet detected, an
+        // interferer) moves the floor and the spread only as far as a clipped value would,
+        // so undetected signal cannot lift the threshold above itself.
+        let a_up = 1.0 / self.cfg.floor_tau;
+        let clip = 2.0 * self.sigma().max(1e-9);
+        let d = (x - self.floor).clamp(-4.0 * clip, clip);
+        let a = if d < 0.0 { 4.0 * a_up } else { a_up };
+        self.floor += a * d;
+        self.dev += a_up * (d.abs().min(clip) - self.dev);
+        self.recent_level *= 1.0 - 1.0 / self.cfg.level_tau;
+    }
+
+    fn start_mark(&mut self, i: u64, x: f32, l: Complex64) {
+        let k = self.ring.len() as u64;
+        self.in_mark = true;
+        self.det = i;
+        let from = i.saturating_sub(k - 1).max(self.free_from);
+        self.rise_buf.clear();
+        for j in from..=i {
+            self.rise_buf.push(self.ring_get(j));
+        }
+        self.rise_start = from;
+        self.sum = x as f64;
+        self.cnt = 1;
+        self.lag_sum = l;
+        self.below = 0;
+        self.noise_at_start = self.sigma();
+    }
+
+    fn mark_sample(&mut self, i: u64, x: f32, l: Complex64, out: &mut Vec<Mark>) {
+        if self.rise_buf.len() < 2 * self.ring.len() {
+            self.rise_buf.push(x);
+        }
+        let plateau = (self.sum / self.cnt as f64) as f32;
+        let release = self.floor + 0.5 * (plateau - self.floor);
+        if x < release {
+            if self.below == 0 {
+                self.first_below = i;
+            }
+            self.below += 1;
+            if self.below >= self.cfg.hold {
+                self.end_mark(i, out);
+            }
+        } else {
+            self.below = 0;
+            self.sum += x as f64;
+            self.cnt += 1;
+            self.lag_sum += l;
+            if self.cnt as usize >= self.cfg.max_mark {
+                self.first_below = i + 1;
+                self.end_mark(i, out);
+            }
+        }
+    }
+
+    fn end_mark(&mut self, i: u64, out: &mut Vec<Mark>) {
+        self.in_mark = false;
+        self.free_from = self.first_below;
+        let plateau = (self.sum / self.cnt as f64) as f32;
+        let mid = self.floor + 0.5 * (plateau - self.floor);
+        let keep = self.cnt as usize >= self.cfg.min_mark;
+        if keep {
+            let rise = self.find_rise(mid);
+            let fall = self.find_fall(i, mid);
+            if fall > rise {
+                out.push(Mark {
+                    rise,
+                    fall,
+                    level: plateau - self.floor,
+                    noise: self.noise_at_start,
+                    lag: self.lag_sum,
+                });
+                self.recent_level = plateau - self.floor;
+            }
+        }
+        self.below = 0;
+    }
+
+    /// Upward midpoint crossing nearest the detection point.
+    fn find_rise(&self, mid: f32) -> f64 {
+        let b = &self.rise_buf;
+        let mut j = (self.det - self.rise_start) as usize;
+        if b[j] >= mid {
+            while j > 0 && b[j - 1] >= mid {
+                j -= 1;
+            }
+            if j == 0 {
+                return self.rise_start as f64;
+            }
+        } else {
+            while j + 1 < b.len() && b[j] < mid {
+                j += 1;
+            }
+        }
+        self.rise_start as f64 + cross(b[j - 1], b[j], mid) + (j - 1) as f64
+    }
+
+    /// Downward midpoint crossing nearest the first sample below the release level.
+    fn find_fall(&self, last: u64, mid: f32) -> f64 {
+        let k = self.ring.len() as u64;
+        let lo = last.saturating_sub(k - 1).max(self.det);
+        let mut f = self.first_below.clamp(lo, last);
+        if self.ring_get(f) < mid {
+            while f > lo && self.ring_get(f - 1) < mid {
+                f -= 1;
+            }
+            if f == lo {
+                return f as f64;
+            }
+        } else {
+            while f < last && self.ring_get(f) >= mid {
+                f += 1;
+            }
+            if self.ring_get(f) >= mid {
+                return f as f64 + 1.0;
+            }
+        }
+        let a = self.ring_get(f - 1);
+        let b = self.ring_get(f);
+        (f - 1) as f64 + cross(a, b, mid)
+    }
+
+    /// Closes an open mark at the end of the stream (it becomes a mark cut by the end).
+    pub fn finish(&mut self, out: &mut Vec<Mark>) {
+        if self.in_mark && self.idx > 0 {
+            self.first_below = self.idx - 1;
+            self.end_mark(self.idx - 1, out);
+        }
+    }
+}
+
+/// Fraction of the way from `a` to `b` where the line crosses `mid`, clamped to [0, 1].
+fn cross(a: f32, b: f32, mid: f32) -> f64 {
+    let d = b - a;
+    if d.abs() < 1e-20 {
+        0.5
+    } else {
+        (((mid - a) / d) as f64).clamp(0.0, 1.0)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::rng::Rng;
+
+    /// Envelope with trapezoid marks (linear ramps of `ramp` samples) at exact positions.
+    fn render(len: usize, marks: &[(f64, f64)], ramp: f64, noise: f32, seed: u64) -> Vec<f32> {
+        let mut rng = Rng::new(seed);
+        (0..len)
+            .map(|n| {
+                let t = n as f64;
+                let mut v = 0.0;
+                for &(r, f) in marks {
+                    let lo = (t - ramp / 2.0).max(r);
+                    let hi = (t + ramp / 2.0).min(f);
+                    if hi > lo {
+                        v += (hi - lo) / ramp;
+                    }
+                }
+                0.05 + 0.8 * v as f32 + noise * rng.gauss() as f32
+            })
+            .collect()
+    }
+
+    fn run(env: &[f32], step: usize) -> Vec<Mark> {
+        let mut d = EdgeDetector::new(EdgeConfig::for_rate(200_000.0));
+        let mut out = Vec::new();
+        for c in env.chunks(step) {
+            d.process(c, &[], &mut out);
+        }
+        d.finish(&mut out);
+        out
+    }
+
+    #[test]
+    fn sub_sample_edges_are_recovered() {
+        let truth = [(500.3, 570.8), (700.55, 910.1), (1000.0, 1013.4)];
+        let env = render(2000, &truth, 4.0, 0.0, 1);
+        let marks = run(&env, 4096);
+        assert_eq!(marks.len(), 3);
+        for (m, t) in marks.iter().zip(truth) {
+            // Linear ramps put the midpoint exactly on the nominal edge.
+            assert!((m.rise - t.0).abs() < 0.1, "{} vs {}", m.rise, t.0);
+            assert!((m.fall - t.1).abs() < 0.1, "{} vs {}", m.fall, t.1);
+        }
+    }
+
+    #[test]
+    fn noisy_marks_keep_their_widths() {
+        let truth: Vec<(f64, f64)> = (0..40)
+            .map(|i| (400.0 + i as f64 * 100.0, 430.0 + i as f64 * 100.0 + (i % 3) as f64 * 20.0))
+            .collect();
+        let env = render(5000, &truth, 3.0, 0.05, 7);
+        let marks = run(&env, 4096);
+        assert_eq!(marks.len(), truth.len());
+        for (m, t) in marks.iter().zip(&truth) {
+            assert!((m.width() - (t.1 - t.0)).abs() < 1.5, "{m:?} vs {t:?}");
+        }
+    }
+
+    #[test]
+    fn block_size_does_not_change_the_marks() {
+        let truth: Vec<(f64, f64)> = (0..30)
+            .map(|i| (300.0 + i as f64 * 77.7, 320.0 + i as f64 * 77.7))
+            .collect();
+        let env = render(3000, &truth, 2.0, 0.03, 3);
+        let whole = run(&env, env.len());
+        for step in [1, 7, 4096] {
+            assert_eq!(run(&env, step), whole, "block size {step}");
+        }
+    }
+
+    #[test]
+    fn pure_noise_gives_few_and_short_marks() {
+        let env = render(200_000, &[], 1.0, 0.05, 11);
+        let marks = run(&env, 4096);
+        // False alarms happen, but must be rare (5σ threshold) and never long.
+        assert!(marks.len() < 20, "{} false marks", marks.len());
+        assert!(marks.iter().all(|m| m.width() < 10.0));
+    }
+
+    #[test]
+    fn reset_gives_identical_reruns() {
+        let env = render(3000, &[(1000.0, 1200.0)], 2.0, 0.02, 5);
+        let mut d = EdgeDetector::new(EdgeConfig::for_rate(200_000.0));
+        let mut a = Vec::new();
+        d.process(&env, &[], &mut a);
+        d.finish(&mut a);
+        d.reset();
+        let mut b = Vec::new();
+        d.process(&env, &[], &mut b);
+        d.finish(&mut b);
+        assert_eq!(a, b);
+    }
+}

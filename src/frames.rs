@@ -1,0 +1,275 @@
+//! Frames: repeats of one press voted into one code, and presses grouped into codes.
+//!
+//! Within a press the most common frame length wins; frames of that length are voted bit by
+//! bit (a tie keeps the earliest frame's bit) and the bits they had to change are counted as
+//! corrected. Frames of another length are partial (a capture that starts or ends inside a
+//! frame) and never become a code of their own.
+//!
+//! A press yields a code when its best line-code score is at least [`MIN_SCORE`], it holds at
+//! least [`MIN_BITS`] bits, and either two frames read exactly the voted code or its single
+//! frame scores at least [`SINGLE_FRAME_SCORE`].
+
+use crate::bursts::Burst;
+use crate::coding::{self, LineCode, Layout};
+use crate::timing::median;
+use num_complex::Complex64;
+
+/// Marks and spaces shorter than this fraction of the burst's typical element are glitches.
+pub const GLITCH_FRACTION: f64 = 0.2;
+/// Lowest line-code score accepted.
+pub const MIN_SCORE: f64 = 0.5;
+/// Fewest data bits a code may have.
+pub const MIN_BITS: usize = 4;
+/// Score a press with a single frame needs.
+pub const SINGLE_FRAME_SCORE: f64 = 0.85;
+
+/// One frame of a press, in capture samples.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FrameRecord {
+    /// The frame's own bits (before voting).
+    pub bits: Vec<bool>,
+    /// First rising edge (header included).
+    pub start: f64,
+    /// Last falling edge (closing/stop mark included).
+    pub end: f64,
+    /// Total mark time.
+    pub on_time: f64,
+    /// Its marks as (rise, fall).
+    pub marks: Vec<(f64, f64)>,
+}
+
+/// A decoded press.
+#[derive(Debug, Clone)]
+pub struct PressDecode {
+    /// Chosen line code.
+    pub line_code: LineCode,
+    /// Voted data bits.
+    pub bits: Vec<bool>,
+    /// Score of the chosen line code.
+    pub score: f64,
+    /// The runner-up hypothesis and its score.
+    pub runner_up: Option<(LineCode, f64)>,
+    /// Full-length frames (voted).
+    pub frames: Vec<FrameRecord>,
+    /// Frames of another length (cut by the capture's ends or damaged).
+    pub partial_frames: usize,
+    /// Bits changed by the vote.
+    pub corrected_bits: usize,
+    /// Base unit in capture samples.
+    pub unit: f64,
+    /// Header, closing mark and gap in capture samples.
+    pub layout: Layout,
+    /// First rising edge of the press.
+    pub start: f64,
+    /// Last falling edge of the press.
+    pub end: f64,
+    /// Total mark time of the press.
+    pub on_time: f64,
+    /// Median mark level above the floor.
+    pub level: f64,
+    /// Median idle noise standard deviation.
+    pub noise: f64,
+    /// Sum of lag-1 IQ products over the press's marks (zero for envelopes).
+    pub lag: Complex64,
+}
+
+/// Bits as a '0'/'1' string.
+pub fn bit_string(bits: &[bool]) -> String {
+    bits.iter().map(|&b| if b { '1' } else { '0' }).collect()
+}
+
+/// Bits as lower-case hex, MSB first, left-padded with zeros to whole nibbles.
+///
+/// ```
+/// assert_eq!(ooksift::frames::hex_of("110011110010101100010010"), "cf2b12");
+/// assert_eq!(ooksift::frames::hex_of("10101"), "15");
+/// ```
+pub fn hex_of(bits: &str) -> String {
+    let pad = (4 - bits.len() % 4) % 4;
+    let padded: String = "0".repeat(pad) + bits;
+    padded
+        .as_bytes()
+        .chunks(4)
+        .map(|c| {
+            let v = c.iter().fold(0u32, |a, &b| (a << 1) | u32::from(b == b'1'));
+            char::from_digit(v, 16).unwrap_or('0')
+        })
+        .collect()
+}
+
+/// The stable identifier of a code: `{line_code}{bit_count}-{h}`, `h` being the 64-bit
+/// FNV-1a hash of `"{line_code}:{bits}"` folded to 32 bits (high XOR low), in 8 hex digits.
+///
+/// ```
+/// // Cross-checked with the independent numpy reference script (tests/reference).
+/// assert_eq!(ooksift::frames::key_id("pwm", "0101"), "pwm4-75c351c7");
+/// ```
+pub fn key_id(line_code: &str, bits: &str) -> String {
+    let mut h: u64 = 0xcbf2_9ce4_8422_2325;
+    for b in format!("{line_code}:{bits}").bytes() {
+        h ^= b as u64;
+        h = h.wrapping_mul(0x0000_0100_0000_01b3);
+    }
+    let folded = (h >> 32) ^ (h & 0xffff_ffff);
+    format!("{line_code}{}-{folded:08x}", bits.len())
+}
+
+/// Decodes one burst into a press, or `None` when no line code explains it well enough.
+pub fn decode_press(burst: &Burst) -> Option<PressDecode> {
+    let mut cleaned = burst.marks.clone();
+    crate::bursts::merge_glitches(&mut cleaned, GLITCH_FRACTION);
+    let burst = &Burst {
+        marks: cleaned,
+        capped: burst.capped,
+    };
+    let candidates = coding::assess(&burst.marks);
+    let best = candidates.first()?;
+    if best.score < MIN_SCORE {
+        return None;
+    }
+    let runner_up = candidates.get(1).map(|c| (c.line_code, c.score));
+    // The most common length (ties: the longer).
+    let mut lengths: Vec<usize> = best.frames.iter().map(|f| f.bits.len()).collect();
+    lengths.sort_unstable();
+    let mut mode = (0usize, 0usize);
+    let mut i = 0;
+    while i < lengths.len() {
+        let j = lengths[i..].iter().take_while(|&&l| l == lengths[i]).count();
+        if j >= mode.1 {
+            mode = (lengths[i], j);
+        }
+        i += j;
+    }
+    let len = mode.0;
+    if len < MIN_BITS {
+        return None;
+    }
+    let full: Vec<_> = best.frames.iter().filter(|f| f.bits.len() == len).collect();
+    let partial_frames = best.frames.len() - full.len();
+    let mut bits = Vec::with_capacity(len);
+    for k in 0..len {
+        let ones = full.iter().filter(|f| f.bits[k]).count();
+        let zeros = full.len() - ones;
+        bits.push(if ones == zeros {
+            full[0].bits[k]
+        } else {
+            ones > zeros
+        });
+    }
+    let corrected_bits: usize = full
+        .iter()
+        .map(|f| f.bits.iter().zip(&bits).filter(|(a, b)| a != b).count())
+        .sum();
+    let exact = full.iter().filter(|f| f.bits == bits).count();
+    let accepted = exact >= 2 || (full.len() == 1 && best.score >= SINGLE_FRAME_SCORE);
+    if !accepted {
+        return None;
+    }
+    let marks = &burst.marks;
+    let frames = full
+        .iter()
+        .map(|f| {
+            let ms = &marks[f.first_mark..=f.last_mark];
+            FrameRecord {
+                bits: f.bits.clone(),
+                start: ms[0].rise,
+                end: ms[ms.len() - 1].fall,
+                on_time: ms.iter().map(|m| m.width()).sum(),
+                marks: ms.iter().map(|m| (m.rise, m.fall)).collect(),
+            }
+        })
+        .collect();
+    let levels: Vec<f64> = marks.iter().map(|m| m.level as f64).collect();
+    let noises: Vec<f64> = marks.iter().map(|m| m.noise as f64).collect();
+    Some(PressDecode {
+        line_code: best.line_code,
+        bits,
+        score: best.score,
+        runner_up,
+        frames,
+        partial_frames,
+        corrected_bits,
+        unit: best.unit,
+        layout: best.layout.clone(),
+        start: burst.start(),
+        end: burst.end(),
+        on_time: marks.iter().map(|m| m.width()).sum(),
+        level: median(&levels),
+        noise: median(&noises),
+        lag: marks.iter().map(|m| m.lag).sum(),
+    })
+}
+
+/// Presses carrying one code.
+#[derive(Debug, Clone)]
+pub struct CodeGroup {
+    /// Line code.
+    pub line_code: LineCode,
+    /// Data bits.
+    pub bits: Vec<bool>,
+    /// The presses, in capture order.
+    pub presses: Vec<PressDecode>,
+}
+
+/// Groups presses by (line code, bits), in order of first appearance.
+pub fn group(presses: Vec<PressDecode>) -> Vec<CodeGroup> {
+    let mut groups: Vec<CodeGroup> = Vec::new();
+    for p in presses {
+        match groups
+            .iter_mut()
+            .find(|g| g.line_code == p.line_code && g.bits == p.bits)
+        {
+            Some(g) => g.presses.push(p),
+            None => groups.push(CodeGroup {
+                line_code: p.line_code,
+                bits: p.bits.clone(),
+                presses: vec![p],
+            }),
+        }
+    }
+    groups
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::coding::test_marks;
+
+    #[test]
+    fn key_ids_match_the_reference_generator() {
+        // Values computed by tests/reference/make_reference_captures.py (numpy script, its
+        // own FNV-1a implementation) and stored in its truth files.
+        assert_eq!(key_id("pwm", "110011110010101100010010"), "pwm24-5c9f4e1f");
+        assert_eq!(key_id("ppm", "11101101011101011100001011101011"), "ppm32-527c0c84");
+        assert_eq!(key_id("pwm", "0001111001010011"), "pwm16-64a9fc8f");
+    }
+
+    #[test]
+    fn a_damaged_frame_is_outvoted() {
+        let mut marks = test_marks::pwm("1100101011110000", 100.0, 5);
+        // Widen the third mark of the second frame (17 marks per frame): a 0 read as 1.
+        let i = 17 + 2;
+        marks[i].fall += 200.0;
+        let burst = Burst {
+            marks,
+            capped: false,
+        };
+        let p = decode_press(&burst).expect("decodes");
+        assert_eq!(bit_string(&p.bits), "1100101011110000");
+        assert_eq!(p.corrected_bits, 1);
+        assert_eq!(p.frames.len(), 5);
+    }
+
+    #[test]
+    fn a_cut_first_frame_is_partial_not_a_code() {
+        let marks = test_marks::pwm("1100101011110000", 100.0, 4);
+        let burst = Burst {
+            marks: marks[6..].to_vec(),
+            capped: false,
+        };
+        let p = decode_press(&burst).expect("decodes");
+        assert_eq!(bit_string(&p.bits), "1100101011110000");
+        assert_eq!(p.partial_frames, 1);
+        assert_eq!(p.frames.len(), 3);
+    }
+}

@@ -1,0 +1,211 @@
+//! Headerless sample streams (raw files, standard input, SigMF datasets).
+
+use super::{CaptureInfo, Result, SampleSource, Samples, SourceError};
+use num_complex::Complex32;
+use std::io::{ErrorKind, Read};
+
+/// Reads interleaved samples of one [`super::Datatype`] in fixed-size blocks.
+///
+/// Short reads from pipes are normal: bytes of a split sample are carried to the next block.
+/// A stream that ends inside a sample is an error, as is a NaN or infinite float.
+pub struct RawSource {
+    info: CaptureInfo,
+    reader: Box<dyn Read>,
+    bytes: Vec<u8>,
+    comps: Vec<f32>,
+    iq: Vec<Complex32>,
+    block_samples: usize,
+    /// Samples delivered so far (absolute index of the next sample).
+    position: u64,
+    /// Bytes left to read when a limit applies (SigMF datasets with trailing bytes).
+    remaining: Option<u64>,
+    done: bool,
+}
+
+impl RawSource {
+    /// Wraps a reader positioned at the first sample.
+    pub fn new(info: CaptureInfo, reader: Box<dyn Read>, block_samples: usize) -> RawSource {
+        let sb = info.datatype.sample_bytes();
+        RawSource {
+            info,
+            reader,
+            bytes: Vec::with_capacity(block_samples * sb),
+            comps: Vec::with_capacity(block_samples * 2),
+            iq: Vec::with_capacity(block_samples),
+            block_samples,
+            position: 0,
+            remaining: None,
+            done: false,
+        }
+    }
+
+    /// Reads at most `limit` bytes in all.
+    pub fn with_byte_limit(mut self, limit: u64) -> RawSource {
+        self.remaining = Some(limit);
+        self
+    }
+
+    fn fill(&mut self) -> Result<()> {
+        let sb = self.info.datatype.sample_bytes();
+        let want = self.block_samples * sb;
+        let mut have = self.bytes.len();
+        self.bytes.resize(want, 0);
+        while have < want {
+            let cap = match self.remaining {
+                Some(r) => (want - have).min(r as usize),
+                None => want - have,
+            };
+            if cap == 0 {
+                self.done = true;
+                break;
+            }
+            match self.reader.read(&mut self.bytes[have..have + cap]) {
+                Ok(0) => {
+                    self.done = true;
+                    break;
+                }
+                Ok(n) => {
+                    have += n;
+                    if let Some(r) = self.remaining.as_mut() {
+                        *r -= n as u64;
+                    }
+                }
+                Err(e) if e.kind() == ErrorKind::Interrupted => continue,
+                Err(e) => return Err(e.into()),
+            }
+        }
+        self.bytes.truncate(have);
+        Ok(())
+    }
+}
+
+impl SampleSource for RawSource {
+    fn info(&self) -> &CaptureInfo {
+        &self.info
+    }
+
+    fn next_block(&mut self) -> Result<Option<Samples<'_>>> {
+        if self.done && self.bytes.is_empty() {
+            return Ok(None);
+        }
+        self.fill()?;
+        let dt = self.info.datatype;
+        let sb = dt.sample_bytes();
+        let whole = self.bytes.len() / sb * sb;
+        if whole == 0 {
+            if !self.bytes.is_empty() {
+                let trailing = self.bytes.len();
+                self.bytes.clear();
+                return Err(SourceError::PartialSample {
+                    trailing,
+                    datatype: dt.to_string(),
+                    sample_bytes: sb,
+                });
+            }
+            if self.position == 0 {
+                return Err(SourceError::Empty);
+            }
+            return Ok(None);
+        }
+        self.comps.clear();
+        dt.decode_components(&self.bytes[..whole], &mut self.comps);
+        self.bytes.drain(..whole);
+        if self.done && !self.bytes.is_empty() {
+            // The stream ended inside a sample; report it after this block's last whole sample
+            // would be indistinguishable from silence, so fail now.
+            return Err(SourceError::PartialSample {
+                trailing: self.bytes.len(),
+                datatype: dt.to_string(),
+                sample_bytes: sb,
+            });
+        }
+        if dt.is_float() {
+            let per = if dt.complex { 2 } else { 1 };
+            if let Some(i) = self.comps.iter().position(|v| !v.is_finite()) {
+                return Err(SourceError::NonFinite {
+                    index: self.position + (i / per) as u64,
+                    value: self.comps[i],
+                });
+            }
+        }
+        let n = whole / sb;
+        self.position += n as u64;
+        if dt.complex {
+            self.iq.clear();
+            self.iq.extend(
+                self.comps
+                    .chunks_exact(2)
+                    .map(|c| Complex32::new(c[0], c[1])),
+            );
+            Ok(Some(Samples::Iq(&self.iq)))
+        } else {
+            Ok(Some(Samples::Envelope(&self.comps)))
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::source::Container;
+    use crate::units::Rate;
+
+    fn info(dt: &str) -> CaptureInfo {
+        CaptureInfo {
+            path: "mem".into(),
+            container: Container::Raw,
+            datatype: dt.parse().expect("valid"),
+            rate: Rate::new(1000.0).expect("valid"),
+            center_frequency_hz: None,
+            declared_samples: None,
+        }
+    }
+
+    /// A reader that returns at most `step` bytes per call, like a pipe.
+    struct Trickle(Vec<u8>, usize, usize);
+    impl Read for Trickle {
+        fn read(&mut self, buf: &mut [u8]) -> std::io::Result<usize> {
+            let n = self.2.min(buf.len()).min(self.0.len() - self.1);
+            buf[..n].copy_from_slice(&self.0[self.1..self.1 + n]);
+            self.1 += n;
+            Ok(n)
+        }
+    }
+
+    fn collect(dt: &str, bytes: Vec<u8>, block: usize, step: usize) -> Result<Vec<f32>> {
+        let mut src = RawSource::new(info(dt), Box::new(Trickle(bytes, 0, step)), block);
+        let mut out = Vec::new();
+        while let Some(b) = src.next_block()? {
+            match b {
+                Samples::Iq(s) => out.extend(s.iter().flat_map(|c| [c.re, c.im])),
+                Samples::Envelope(s) => out.extend_from_slice(s),
+            }
+        }
+        Ok(out)
+    }
+
+    #[test]
+    fn block_and_read_sizes_do_not_change_the_samples() {
+        let bytes: Vec<u8> = (0..=255u8).cycle().take(4000).collect();
+        let whole = collect("ci16_le", bytes.clone(), 1 << 20, usize::MAX).expect("reads");
+        for (block, step) in [(1, 1), (7, 3), (4096, 5), (3, 4096)] {
+            assert_eq!(collect("ci16_le", bytes.clone(), block, step).expect("reads"), whole);
+        }
+    }
+
+    #[test]
+    fn a_split_last_sample_is_an_error() {
+        let err = collect("cf32_le", vec![0u8; 8 * 3 + 5], 2, 7).expect_err("partial");
+        assert!(matches!(err, SourceError::PartialSample { trailing: 5, .. }), "{err}");
+    }
+
+    #[test]
+    fn nan_samples_are_refused_with_their_index() {
+        let mut bytes = Vec::new();
+        for v in [0.0f32, 0.5, f32::NAN, 1.0] {
+            bytes.extend_from_slice(&v.to_le_bytes());
+        }
+        let err = collect("rf32_le", bytes, 16, 16).expect_err("NaN");
+        assert!(matches!(err, SourceError::NonFinite { index: 2, .. }), "{err}");
+    }
+}
