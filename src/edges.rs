@@ -251,10 +251,25 @@ impl EdgeDetector {
         }
     }
 
+    /// The mark's plateau: the median of its samples when they all fit in the rise buffer
+    /// (ramps then cannot pull it down), else their mean (ramps are negligible in long marks).
+    fn plateau(&self) -> f32 {
+        let from = (self.det - self.rise_start) as usize;
+        let to = (self.first_below.saturating_sub(self.rise_start) as usize).min(self.rise_buf.len());
+        let end_in_buf = self.first_below < self.rise_start + self.rise_buf.len() as u64;
+        if end_in_buf && to > from {
+            let mut v: Vec<f32> = self.rise_buf[from..to].to_vec();
+            v.sort_by(f32::total_cmp);
+            v[v.len() / 2]
+        } else {
+            (self.sum / self.cnt as f64) as f32
+        }
+    }
+
     fn end_mark(&mut self, i: u64, out: &mut Vec<Mark>) {
         self.in_mark = false;
+        let plateau = self.plateau();
         self.free_from = self.first_below;
-        let plateau = (self.sum / self.cnt as f64) as f32;
         let mid = self.floor + 0.5 * (plateau - self.floor);
         let keep = self.cnt as usize >= self.cfg.min_mark;
         if keep {
