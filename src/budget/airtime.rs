@@ -216,7 +216,9 @@ impl<'a> MarkIndex<'a> {
 /// `marks` must be sorted and non-overlapping `(rise_s, fall_s)` pairs. The on-time as a function
 /// of the window start is piecewise linear; its maximum is reached where its slope drops, i.e.
 /// with the window start on a rising edge or the window end on a falling edge, so only those
-/// starts are searched (exact, `O(n log n)`). Returns `(0.0, 0.0)` for no marks.
+/// starts are searched (exact, `O(n log n)`). Either set alone already reaches the maximum
+/// (a flat top always touches a rising start and a falling end); both are searched as a
+/// cross-check. Returns `(0.0, 0.0)` for no marks.
 pub fn worst_window_on_time_s(marks: &[(f64, f64)], window_s: f64) -> (f64, f64) {
     let index = MarkIndex::new(marks);
     let mut best = (0.0, marks.first().map_or(0.0, |m| m.0));

@@ -71,12 +71,12 @@ pub struct EnergyProfile {
     /// Name shown in reports.
     pub name: String,
     /// Free text: where the figures come from (say "typical" for datasheet-typical values).
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub note: Option<String>,
     /// The transmitter.
     pub transmitter: TransmitterProfile,
     /// What one press harvests; without it only energy per frame and press is reported.
-    #[serde(default)]
+    #[serde(default, skip_serializing_if = "Option::is_none")]
     pub harvester: Option<HarvesterProfile>,
 }
 
@@ -112,10 +112,10 @@ pub enum SupplyProfile {
     /// A linear regulator (input current ≈ output current).
     Linear {
         /// Output voltage, when given directly.
-        #[serde(default)]
+        #[serde(default, skip_serializing_if = "Option::is_none")]
         output_v: Option<f64>,
         /// Divider setting the output, instead of `output_v`.
-        #[serde(default)]
+        #[serde(default, skip_serializing_if = "Option::is_none")]
         divider: Option<Divider>,
         /// Minimum input-output difference.
         #[serde(default)]
@@ -124,10 +124,10 @@ pub enum SupplyProfile {
     /// A switching converter with a constant efficiency.
     Switching {
         /// Output voltage, when given directly.
-        #[serde(default)]
+        #[serde(default, skip_serializing_if = "Option::is_none")]
         output_v: Option<f64>,
         /// Divider setting the output, instead of `output_v`.
-        #[serde(default)]
+        #[serde(default, skip_serializing_if = "Option::is_none")]
         divider: Option<Divider>,
         /// Output energy / input energy, in (0, 1].
         efficiency: f64,
