@@ -214,7 +214,8 @@ fn peak_cap_below_minus_20_db() {
 
 #[test]
 fn fcc_15231b_at_433_92() {
-    // facts.md §1.4 [D] (table row [C2], a regulatory training page cited there): 10,996.67 µV/m = 80.83 dBµV/m,
+    // facts.md §1.4 [D] (table row [C2], a regulatory training page cited there):
+    // 10,996.67 µV/m = 80.83 dBµV/m,
     // peak 100.83 dBµV/m, −14.40 dBm EIRP.
     let uv = fcc_15231b_limit_uv_m(433.92e6).expect("in range");
     assert_close!(uv, 10_996.67, 0.005);
@@ -252,7 +253,8 @@ fn fcc_15231e_limit_and_silent_periods() {
     let uv = fcc_15231e_limit_uv_m(433.92e6).expect("in range");
     assert_close!(uv, 4_398.67, 0.005);
     assert_close!(uv_m_to_dbuv_m(uv), 72.87, 0.005);
-    // facts.md §1.6 worked [D] (rule [C2], a 2007 serial-communication book cited there): silent ≥ max(30 t, 10 s).
+    // facts.md §1.6 worked [D] (rule [C2], a 2007 serial-communication book cited there):
+    // silent ≥ max(30 t, 10 s).
     assert_eq!(silent_period_s(0.1), Some(10.0));
     assert_eq!(silent_period_s(0.3), Some(10.0));
     assert_close!(silent_period_s(0.5).unwrap_or(0.0), 15.0, 1e-12);
