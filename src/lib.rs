@@ -10,6 +10,7 @@
 //!
 //! [`synth`] is the inverse: codes and a channel model in, a capture and its truth out.
 
+pub mod budget;
 pub mod bursts;
 pub mod coding;
 pub mod decode;
