@@ -121,6 +121,9 @@ struct SynthArgs {
     /// Silence after the last press, ms.
     #[arg(long, value_name = "MS")]
     tail_ms: Option<f64>,
+    /// Make the capture at least this long, ms (with no --press: pure noise).
+    #[arg(long, value_name = "MS")]
+    duration_ms: Option<f64>,
     /// Seed of noise and phases.
     #[arg(long, value_name = "N")]
     seed: Option<u64>,
@@ -244,6 +247,9 @@ fn synth_cmd(a: SynthArgs) -> i32 {
     }
     if let Some(v) = a.tail_ms {
         spec.tail_ms = v;
+    }
+    if let Some(v) = a.duration_ms {
+        spec.min_duration_ms = v;
     }
     if let Some(v) = a.seed {
         spec.seed = v;

@@ -144,6 +144,11 @@ pub fn decode_press(burst: &Burst) -> Option<PressDecode> {
     if len < MIN_BITS {
         return None;
     }
+    if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+        for f in &best.frames {
+            eprintln!("  frame {} marks {}..{}", bit_string(&f.bits), f.first_mark, f.last_mark);
+        }
+    }
     let full: Vec<_> = best.frames.iter().filter(|f| f.bits.len() == len).collect();
     let partial_frames = best.frames.len() - full.len();
     let mut bits = Vec::with_capacity(len);

@@ -1,8 +1,9 @@
 //! PWM: one mark and the space after it per bit; the wider mark is 1.
 //!
 //! Score = separation of the two mark widths × the share of bits whose period (mark + space)
-//! is within 20 % of the median period. A short last mark before the frame gap is the
-//! closing (sync) mark and not a bit; a long one is the last data bit.
+//! is within 20 % of the median period. When most frames end with a short mark before the gap,
+//! every frame's last mark is the closing (sync) mark and not a bit; otherwise it is the last
+//! data bit.
 //!
 //! Unit: `T0 = (short mark + short space) / 2` cancels a receiver's mark stretching; the bit
 //! period is `round(P / T0)` units, and the unit is `P` divided by that count.
@@ -19,6 +20,14 @@ pub(super) fn slice(bf: &BurstFrames<'_>) -> Option<Candidate> {
     let (short, long) = split_two(&widths)?;
     let ratio = long.mean / short.mean.max(1e-9);
     let thr = 0.5 * (short.max + long.min);
+    // Whether frames end with a closing mark is a property of the code, not of one frame:
+    // decide it by majority, so a noisy closing mark that reads long does not become a bit.
+    let short_last = bf
+        .frames
+        .iter()
+        .filter(|&&(_, b)| bf.marks[b].width() <= thr)
+        .count();
+    let closing_mark = short_last * 2 > bf.frames.len();
     let mut frames = Vec::new();
     let mut periods = Vec::new();
     let mut spaces = Vec::new();
@@ -37,10 +46,10 @@ pub(super) fn slice(bf: &BurstFrames<'_>) -> Option<Candidate> {
             spaces.push(sp);
         }
         let last = bf.marks[b].width();
-        if last > thr {
-            bits.push(true);
-        } else {
+        if closing_mark {
             closing.push(last);
+        } else {
+            bits.push(last > thr);
         }
         frames.push(SlicedFrame {
             bits,

@@ -25,6 +25,8 @@ pub struct SynthSpec {
     pub lead_ms: f64,
     /// Silence after the last press.
     pub tail_ms: f64,
+    /// The capture lasts at least this long (pure-noise captures have no presses).
+    pub min_duration_ms: f64,
     /// The channel.
     pub channel: ChannelSpec,
     /// The presses, in time order.
@@ -42,6 +44,7 @@ impl Default for SynthSpec {
             seed: 1,
             lead_ms: 40.0,
             tail_ms: 40.0,
+            min_duration_ms: 0.0,
             channel: ChannelSpec::default(),
             presses: Vec::new(),
         }

@@ -145,10 +145,13 @@ fn plan(spec: &SynthSpec, rng: &mut Rng) -> Result<(Vec<PressPlan>, Vec<TxMark>,
         });
         t = end;
     }
-    if presses.is_empty() {
-        return Err(SynthError::Spec("no presses to write".into()));
+    let duration = (t + spec.tail_ms * 1e-3).max(spec.min_duration_ms * 1e-3);
+    if !(duration.is_finite() && duration > 0.0) {
+        return Err(SynthError::Spec(
+            "nothing to write: give presses or min_duration_ms".into(),
+        ));
     }
-    Ok((presses, marks, t + spec.tail_ms * 1e-3))
+    Ok((presses, marks, duration))
 }
 
 fn truth_codes(presses: &[PressPlan], iq: bool) -> Vec<TruthCode> {
@@ -298,7 +301,8 @@ pub fn write_capture(spec: &SynthSpec, out: &Path, force: bool) -> Result<TruthF
     let n_total = (duration * fs_hz).ceil() as u64;
     let ch = &spec.channel;
     let a = ch.amplitude;
-    let unit_s = presses[0].layout.unit_s;
+    // Noise is defined against the first press's unit (350 µs when there is none).
+    let unit_s = presses.first().map_or(350e-6, |p| p.layout.unit_s);
     // Eu/N0 = A²·T/N0 and σ² = N0·fs (complex), half per component.
     let sigma_c = ch
         .snr_db
