@@ -10,7 +10,7 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let mut src = open(path, &opts)?;
     let rate = src.info().rate.hz();
     let d = WideEnvelope::decimation_for(rate, 250_000.0);
-    let mut env = WideEnvelope::with_smoothing(d, (40e-6 * rate / d as f64).round() as usize);
+    let mut env = WideEnvelope::with_smoothing(d, (60e-6 * rate / d as f64).round() as usize);
     let mut det = EdgeDetector::new(EdgeConfig::for_rate(rate / env.decim() as f64));
     let mut blk = EnvelopeBlock::default();
     let mut marks = Vec::new();

@@ -86,6 +86,35 @@ pub fn merge_glitches(marks: &mut Vec<Mark>, fraction: f64) -> usize {
     before - marks.len()
 }
 
+/// Marks far weaker than the burst's strong marks are noise (false alarms in the silences
+/// between presses, which would otherwise chain presses together): those below
+/// [`WEAK_FRACTION`] of the 90th-percentile level are dropped, and what remains is split again
+/// at silences longer than `min_gap`.
+pub fn refine(marks: Vec<Mark>, min_gap: f64) -> Vec<Vec<Mark>> {
+    if marks.len() < 2 {
+        return vec![marks];
+    }
+    let mut levels: Vec<f32> = marks.iter().map(|m| m.level).collect();
+    levels.sort_by(f32::total_cmp);
+    let strong = levels[((levels.len() - 1) as f64 * 0.9) as usize];
+    let keep = WEAK_FRACTION * strong;
+    let mut parts: Vec<Vec<Mark>> = Vec::new();
+    let mut cur: Vec<Mark> = Vec::new();
+    for m in marks.into_iter().filter(|m| m.level >= keep) {
+        if let Some(last) = cur.last() {
+            if m.rise - last.fall > min_gap {
+                parts.push(std::mem::take(&mut cur));
+            }
+        }
+        cur.push(m);
+    }
+    parts.push(cur);
+    parts
+}
+
+/// Marks weaker than this fraction of a burst's strong marks are noise.
+pub const WEAK_FRACTION: f32 = 0.45;
+
 /// Tuning of [`BurstSplitter`], in capture samples.
 #[derive(Debug, Clone)]
 pub struct BurstConfig {
@@ -140,11 +169,13 @@ impl BurstSplitter {
 
     fn close(&mut self, out: &mut Vec<Burst>) {
         let marks = std::mem::take(&mut self.current);
-        if marks.len() >= self.cfg.min_marks {
-            out.push(Burst {
-                marks,
-                capped: self.capped,
-            });
+        for part in refine(marks, self.cfg.min_gap) {
+            if part.len() >= self.cfg.min_marks {
+                out.push(Burst {
+                    marks: part,
+                    capped: self.capped,
+                });
+            }
         }
         self.longest_space = 0.0;
         self.capped = false;

@@ -50,7 +50,7 @@ impl Default for DecodeOptions {
         DecodeOptions {
             open: OpenOptions::default(),
             max_envelope_rate_hz: 250_000.0,
-            smooth_us: 40.0,
+            smooth_us: 60.0,
             press_gap_ms: None,
             max_presses: 10_000,
         }
@@ -104,7 +104,7 @@ impl Decoder {
             hist: Vec::new(),
             lag_hist: Vec::new(),
             hist_start: 0,
-            margin: ((rate / decim as f64) * 0.004) as usize + 16,
+            margin: ((rate / decim as f64) * 0.025) as usize + 16,
             max_hist: ((rate / decim as f64) * 4.0) as usize + 4096,
             env_rate: rate / decim as f64,
             samples: 0,
@@ -172,7 +172,9 @@ impl Decoder {
             return None;
         }
         let a = (self.env_index(burst.start()).floor() as i64 - self.margin as i64).max(0) as u64;
-        let b = self.env_index(burst.end()).ceil() as u64 + self.margin as u64;
+        // The first pass may have missed weak marks at either end: look a margin before and
+        // sixteen units after the burst.
+        let b = self.env_index(burst.end()).ceil() as u64 + (16.0 * unit_env).ceil() as u64;
         if a < self.hist_start {
             return None;
         }
@@ -187,12 +189,22 @@ impl Decoder {
         } else {
             &[][..]
         };
+        // The burst is known to be there: a lower threshold than the first pass finds its
+        // weak marks, and the glitch filter removes what noise adds.
         let mut cfg = EdgeConfig::for_rate(self.env_rate);
         cfg.warmup = (self.margin / 2).max(8);
+        cfg.on_sigma = 3.0;
         let mut det = EdgeDetector::new(cfg);
         let mut marks = Vec::new();
         det.process(&smoothed, lag, &mut marks);
         det.finish(&mut marks);
+        let (floor, _) = det.floor_and_noise();
+        crate::edges::refine_edges(&smoothed, floor, &mut marks, half + 3);
+        let mut marks: Vec<Mark> = crate::bursts::refine(marks, f64::INFINITY)
+            .into_iter()
+            .flatten()
+            .collect();
+        marks.retain(|m| m.width() > 0.0);
         let marks: Vec<Mark> = marks
             .into_iter()
             .map(|m| Mark {
@@ -307,7 +319,7 @@ fn better(a: Option<PressDecode>, b: Option<PressDecode>) -> Option<PressDecode>
                     (p.score * 1000.0) as i64,
                 )
             };
-            Some(if key(&b) > key(&a) { b } else { a })
+            Some(if key(&b) >= key(&a) { b } else { a })
         }
         (a, b) => a.or(b),
     }

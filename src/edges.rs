@@ -199,12 +199,23 @@ impl EdgeDetector {
         // Robust tracking: a sample far above the floor (a weak mark not yet detected, an
         // interferer) moves the floor and the spread only as far as a clipped value would,
         // so undetected signal cannot lift the threshold above itself.
-        let a_up = 1.0 / self.cfg.floor_tau;
-        let clip = 2.0 * self.sigma().max(1e-9);
-        let d = (x - self.floor).clamp(-4.0 * clip, clip);
-        let a = if d < 0.0 { 4.0 * a_up } else { a_up };
-        self.floor += a * d;
-        self.dev += a_up * (d.abs().min(clip) - self.dev);
+        // Robust tracking. Undetected signal (the ramps of marks, marks too weak for the
+        // threshold) only ever lifts the envelope, so the floor follows the median (a step of
+        // fixed size towards each sample, blind to how far above it lies) and the spread is
+        // learnt from the samples below the floor alone. Neither can then be pulled up by
+        // signal until it hides itself. Only a drop far below the floor (a capture that began
+        // inside a mark) is followed at once.
+        let a = 1.0 / self.cfg.floor_tau;
+        let sigma = self.sigma().max(1e-9);
+        let d = x - self.floor;
+        if d < -4.0 * sigma {
+            self.floor += 4.0 * a * d;
+        } else {
+            self.floor += a * sigma * d.signum();
+            if d < 0.0 {
+                self.dev += a * (-d - self.dev);
+            }
+        }
         self.recent_level *= 1.0 - 1.0 / self.cfg.level_tau;
     }
 
@@ -289,21 +300,31 @@ impl EdgeDetector {
         self.below = 0;
     }
 
-    /// Upward midpoint crossing nearest the detection point.
+    /// Upward midpoint crossing that opens the mark: going back from the detection point,
+    /// the mark starts after the last run of `hold` samples below the midpoint — the same rule
+    /// that ends it, so noise near the two edges biases them alike and widths stay unbiased.
     fn find_rise(&self, mid: f32) -> f64 {
         let b = &self.rise_buf;
+        let hold = self.cfg.hold.max(1);
         let mut j = (self.det - self.rise_start) as usize;
-        if b[j] >= mid {
-            while j > 0 && b[j - 1] >= mid {
-                j -= 1;
+        loop {
+            if j < hold {
+                j = 0;
+                break;
             }
-            if j == 0 {
-                return self.rise_start as f64;
+            if b[j - hold..j].iter().all(|&x| x < mid) {
+                break;
             }
-        } else {
-            while j + 1 < b.len() && b[j] < mid {
-                j += 1;
-            }
+            j -= 1;
+        }
+        while j < b.len() && b[j] < mid {
+            j += 1;
+        }
+        if j == 0 {
+            return self.rise_start as f64;
+        }
+        if j >= b.len() {
+            return self.det as f64;
         }
         self.rise_start as f64 + cross(b[j - 1], b[j], mid) + (j - 1) as f64
     }
@@ -338,6 +359,56 @@ impl EdgeDetector {
         if self.in_mark && self.idx > 0 {
             self.first_below = self.idx - 1;
             self.end_mark(self.idx - 1, out);
+        }
+    }
+}
+
+/// Re-places the edges of `marks` (positions in `env` sample indices) by the area method:
+/// around each edge, the sum of the envelope normalised between `floor` and the mark's level
+/// equals the number of samples on the mark's side of the edge. Zero-mean noise adds no bias
+/// (threshold crossings of a noisy ramp are biased outward), and any symmetric smoothing up to
+/// `reach` samples either side is allowed. Each window is limited to half the neighbouring
+/// mark and spaces, so edges never borrow area from their neighbours.
+pub fn refine_edges(env: &[f32], floor: f32, marks: &mut [Mark], reach: usize) {
+    let n = env.len() as f64;
+    let old: Vec<(f64, f64)> = marks.iter().map(|m| (m.rise, m.fall)).collect();
+    for (i, m) in marks.iter_mut().enumerate() {
+        let (r, f) = old[i];
+        let level = m.level;
+        if level <= 0.0 {
+            continue;
+        }
+        let before = if i > 0 { r - old[i - 1].1 } else { f64::INFINITY };
+        let after = old.get(i + 1).map_or(f64::INFINITY, |nx| nx.0 - f);
+        let width = f - r;
+        let norm = |k: usize| ((env[k] - floor) / level) as f64;
+        let h_rise = (reach as f64).min(before / 2.0).min(width / 2.0).floor();
+        let h_fall = (reach as f64).min(after / 2.0).min(width / 2.0).floor();
+        if h_rise >= 1.0 {
+            let a = (r.round() - h_rise).max(0.0);
+            let b = (r.round() + h_rise).min(n - 1.0);
+            if b > a {
+                let s: f64 = (a as usize..=b as usize).map(norm).sum();
+                let est = b + 0.5 - s;
+                if (est - r).abs() <= h_rise {
+                    m.rise = est;
+                }
+            }
+        }
+        if h_fall >= 1.0 {
+            let a = (f.round() - h_fall).max(0.0);
+            let b = (f.round() + h_fall).min(n - 1.0);
+            if b > a {
+                let s: f64 = (a as usize..=b as usize).map(norm).sum();
+                let est = a - 0.5 + s;
+                if (est - f).abs() <= h_fall {
+                    m.fall = est;
+                }
+            }
+        }
+        if m.fall <= m.rise {
+            m.rise = r;
+            m.fall = f;
         }
     }
 }

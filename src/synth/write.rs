@@ -173,8 +173,17 @@ fn truth_codes(presses: &[PressPlan], iq: bool) -> Vec<TruthCode> {
             let first = ps[0];
             let f0 = &first.frames[0];
             let on = |f: &[(f64, f64)]| f.iter().map(|m| m.1 - m.0).sum::<f64>();
-            let press_on: f64 = first.frames.iter().map(|f| on(f)).sum();
-            let last = &first.frames[first.frames.len() - 1];
+            let press_air: Vec<f64> = ps
+                .iter()
+                .map(|p| {
+                    let last = &p.frames[p.frames.len() - 1];
+                    last[last.len() - 1].1 - p.frames[0][0].0
+                })
+                .collect();
+            let press_on: Vec<f64> = ps
+                .iter()
+                .map(|p| p.frames.iter().map(|f| on(f)).sum())
+                .collect();
             TruthCode {
                 key_id: key_id(&lc, &bits),
                 hex: hex_of(&bits),
@@ -190,8 +199,8 @@ fn truth_codes(presses: &[PressPlan], iq: bool) -> Vec<TruthCode> {
                 frame_on_time_ms: ms(on(f0)),
                 frame_period_ms: (first.frames.len() > 1)
                     .then(|| ms(first.frames[1][0].0 - f0[0].0)),
-                press_airtime_ms: ms(last[last.len() - 1].1 - f0[0].0),
-                press_on_time_ms: ms(press_on),
+                press_airtime_ms: ms(median(&press_air)),
+                press_on_time_ms: ms(median(&press_on)),
                 first_start_s: round_to(f0[0].0, 9),
                 line_code: lc,
                 bits,
