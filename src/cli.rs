@@ -32,7 +32,7 @@ pub struct InputArgs {
     #[arg(long, value_name = "F")]
     format: Option<String>,
     /// Sample rate in Hz (required for raw captures; overrides metadata).
-    #[arg(long, value_name = "HZ")]
+    #[arg(long, value_name = "HZ", allow_negative_numbers = true)]
     rate: Option<f64>,
     /// Centre frequency in Hz (overrides metadata).
     #[arg(long, value_name = "HZ")]
