@@ -1,6 +1,7 @@
 //! Command-line definitions and dispatch.
 
 use clap::{Args, Parser, Subcommand};
+use ooksift::budget::{EnergyProfile, Rules};
 use ooksift::decode::{decode_path, DecodeOptions};
 use ooksift::report::{render_text, DecodeReport};
 use ooksift::source::OpenOptions;
@@ -22,6 +23,8 @@ enum Command {
     Decode(DecodeArgs),
     /// Write a synthetic capture and its truth file from codes and a channel model.
     Synth(SynthArgs),
+    /// Airtime, duty-cycle rules and the energy budget of each code of a capture or report.
+    Budget(BudgetArgs),
 }
 
 /// How to read a capture (shared by every command that takes one).
@@ -130,6 +133,240 @@ struct SynthArgs {
     /// Replace existing outputs.
     #[arg(long)]
     force: bool,
+}
+
+#[derive(Args, Debug)]
+struct BudgetArgs {
+    /// A capture, or a report saved by `decode --json` (a .json file).
+    #[arg(value_name = "CAPTURE|REPORT")]
+    input: String,
+    #[command(flatten)]
+    input_args: InputArgs,
+    /// Band rules to apply: us, eu, all or none.
+    #[arg(long, value_name = "SET", default_value = "all")]
+    rules: String,
+    /// Energy profile (schemas/budget-profile.schema.json); options below override it.
+    #[arg(long, value_name = "FILE")]
+    profile: Option<PathBuf>,
+    /// Supply: a fixed voltage.
+    #[arg(long, value_name = "V")]
+    supply_v: Option<f64>,
+    /// Supply: a regulator, linear or switching (give --vout-v or --vref-v/--r1-ohm/--r2-ohm).
+    #[arg(long, value_name = "KIND")]
+    regulator: Option<String>,
+    /// Regulator output voltage.
+    #[arg(long, value_name = "V")]
+    vout_v: Option<f64>,
+    /// Regulator reference voltage (with the divider: Vout = Vref·(1 + R1/R2)).
+    #[arg(long, value_name = "V")]
+    vref_v: Option<f64>,
+    /// Divider resistor from the output to the feedback pin.
+    #[arg(long, value_name = "OHM")]
+    r1_ohm: Option<f64>,
+    /// Divider resistor from the feedback pin to ground.
+    #[arg(long, value_name = "OHM")]
+    r2_ohm: Option<f64>,
+    /// Switching regulator efficiency (0–1].
+    #[arg(long, value_name = "E")]
+    efficiency: Option<f64>,
+    /// Linear regulator dropout.
+    #[arg(long, value_name = "V")]
+    dropout_v: Option<f64>,
+    /// Transmitter current with the carrier on.
+    #[arg(long, value_name = "MA")]
+    mark_ma: Option<f64>,
+    /// Transmitter current with the carrier off, between marks.
+    #[arg(long, value_name = "MA")]
+    space_ma: Option<f64>,
+    /// Oscillator start-up time before the first mark.
+    #[arg(long, value_name = "MS")]
+    startup_ms: Option<f64>,
+    /// Current during start-up.
+    #[arg(long, value_name = "MA")]
+    startup_ma: Option<f64>,
+    /// Harvester: storage capacitor.
+    #[arg(long, value_name = "UF")]
+    store_uf: Option<f64>,
+    /// Harvester: capacitor voltage after the press (V1).
+    #[arg(long, value_name = "V")]
+    start_v: Option<f64>,
+    /// Harvester: voltage at which the transmitter stops (V2).
+    #[arg(long, value_name = "V")]
+    cutoff_v: Option<f64>,
+    /// Harvester: a measured pulse, its voltage across --load-ohm.
+    #[arg(long, value_name = "V")]
+    pulse_v: Option<f64>,
+    /// Harvester: the pulse's duration.
+    #[arg(long, value_name = "MS")]
+    pulse_ms: Option<f64>,
+    /// Harvester: the load the pulse was measured into.
+    #[arg(long, value_name = "OHM")]
+    load_ohm: Option<f64>,
+    /// Print the JSON report (schemas/budget.schema.json) instead of text.
+    #[arg(long)]
+    json: bool,
+    /// Also write one CSV row per press to FILE.
+    #[arg(long, value_name = "FILE")]
+    csv: Option<PathBuf>,
+    /// Replace an existing CSV file.
+    #[arg(long)]
+    force: bool,
+}
+
+/// Reads a capture or a saved decode report into a report.
+fn load_report(input: &str, args: &InputArgs) -> Result<DecodeReport, String> {
+    if input.to_ascii_lowercase().ends_with(".json") {
+        let text = std::fs::read_to_string(input).map_err(|e| format!("cannot read: {e}"))?;
+        return serde_json::from_str(&text)
+            .map_err(|e| format!("not a decode report saved by `ooksift decode --json`: {e}"));
+    }
+    let opts = DecodeOptions {
+        open: args.open_options(),
+        ..DecodeOptions::default()
+    };
+    decode_path(input, &opts).map_err(|e| e.to_string())
+}
+
+fn energy_profile(a: &BudgetArgs) -> Result<Option<EnergyProfile>, String> {
+    use ooksift::budget::{Divider, HarvesterProfile, SupplyProfile, TransmitterProfile};
+    let mut profile = match &a.profile {
+        Some(p) => {
+            let f = std::fs::File::open(p).map_err(|e| format!("{}: {e}", p.display()))?;
+            Some(EnergyProfile::from_reader(f).map_err(|e| format!("{}: {e}", p.display()))?)
+        }
+        None => None,
+    };
+    let any_tx = a.supply_v.is_some()
+        || a.regulator.is_some()
+        || a.mark_ma.is_some()
+        || a.space_ma.is_some()
+        || a.startup_ms.is_some();
+    let any_store = a.store_uf.is_some() || a.start_v.is_some() || a.cutoff_v.is_some();
+    let any_pulse = a.pulse_v.is_some() || a.pulse_ms.is_some() || a.load_ohm.is_some();
+    if profile.is_none() && !(any_tx || any_store || any_pulse) {
+        return Ok(None);
+    }
+    let mut p = profile.take().unwrap_or_else(|| EnergyProfile {
+        name: "command line".into(),
+        note: None,
+        transmitter: TransmitterProfile {
+            supply: SupplyProfile::Fixed { voltage_v: 3.0 },
+            mark_current_ma: f64::NAN,
+            space_current_ma: 0.0,
+            startup_ms: 0.0,
+            startup_current_ma: 0.0,
+        },
+        harvester: None,
+    });
+    let tx = &mut p.transmitter;
+    if let Some(v) = a.supply_v {
+        tx.supply = SupplyProfile::Fixed { voltage_v: v };
+    }
+    if let Some(kind) = &a.regulator {
+        let divider = match (a.vref_v, a.r1_ohm, a.r2_ohm) {
+            (Some(vref_v), Some(r1_ohm), Some(r2_ohm)) => Some(Divider { vref_v, r1_ohm, r2_ohm }),
+            (None, None, None) => None,
+            _ => return Err("--vref-v, --r1-ohm and --r2-ohm go together".into()),
+        };
+        tx.supply = match kind.as_str() {
+            "linear" => SupplyProfile::Linear {
+                output_v: a.vout_v,
+                divider,
+                dropout_v: a.dropout_v.unwrap_or(0.0),
+            },
+            "switching" => SupplyProfile::Switching {
+                output_v: a.vout_v,
+                divider,
+                efficiency: a.efficiency.unwrap_or(0.85),
+            },
+            other => return Err(format!("--regulator {other}: use linear or switching")),
+        };
+    }
+    if let Some(v) = a.mark_ma {
+        tx.mark_current_ma = v;
+    }
+    if tx.mark_current_ma.is_nan() {
+        return Err("the energy budget needs --mark-ma (or a --profile)".into());
+    }
+    if let Some(v) = a.space_ma {
+        tx.space_current_ma = v;
+    }
+    if let Some(v) = a.startup_ms {
+        tx.startup_ms = v;
+    }
+    if let Some(v) = a.startup_ma {
+        tx.startup_current_ma = v;
+    }
+    if any_store {
+        match (a.store_uf, a.start_v, a.cutoff_v) {
+            (Some(capacitance_uf), Some(start_v), Some(cutoff_v)) => {
+                p.harvester = Some(HarvesterProfile::Capacitor {
+                    capacitance_uf,
+                    start_v,
+                    cutoff_v,
+                })
+            }
+            _ => return Err("--store-uf, --start-v and --cutoff-v go together".into()),
+        }
+    }
+    if any_pulse {
+        match (a.pulse_v, a.pulse_ms, a.load_ohm) {
+            (Some(voltage_v), Some(duration_ms), Some(load_ohm)) => {
+                p.harvester = Some(HarvesterProfile::Pulse {
+                    voltage_v,
+                    duration_ms,
+                    load_ohm,
+                })
+            }
+            _ => return Err("--pulse-v, --pulse-ms and --load-ohm go together".into()),
+        }
+    }
+    p.validate().map_err(|e| e.to_string())?;
+    Ok(Some(p))
+}
+
+fn budget_cmd(a: BudgetArgs) -> i32 {
+    let rules = match a.rules.as_str() {
+        "us" => Rules { us: true, eu: false },
+        "eu" => Rules { us: false, eu: true },
+        "all" => Rules { us: true, eu: true },
+        "none" => Rules { us: false, eu: false },
+        other => return fail(&a.input, format!("--rules {other}: use us, eu, all or none")),
+    };
+    let profile = match energy_profile(&a) {
+        Ok(p) => p,
+        Err(e) => return fail(&a.input, e),
+    };
+    let report = match load_report(&a.input, &a.input_args) {
+        Ok(r) => r,
+        Err(e) => return fail(&a.input, e),
+    };
+    let timings = ooksift::budget::from_decode_report(&report);
+    let b = match ooksift::budget::budget(&timings, &rules, profile.as_ref()) {
+        Ok(b) => b,
+        Err(e) => return fail(&a.input, e),
+    };
+    if let Some(path) = &a.csv {
+        let mut buf = Vec::new();
+        if let Err(e) = ooksift::budget::write_csv(&b, &mut buf) {
+            return fail(&path.display().to_string(), e);
+        }
+        if let Err(e) = ooksift::output::write_atomic(path, &buf, a.force) {
+            return fail(&path.display().to_string(), e);
+        }
+    }
+    if a.json {
+        match serde_json::to_string_pretty(&b) {
+            Ok(s) => emit(&(s + "\n")),
+            Err(e) => return fail(&a.input, e),
+        }
+    } else {
+        if report.codes.is_empty() {
+            emit("no code found: nothing to budget\n");
+        }
+        emit(&ooksift::budget::render_text(&b));
+    }
+    0
 }
 
 /// Prints to stdout; a closed pipe ends the program quietly.
@@ -275,5 +512,6 @@ pub fn run() -> i32 {
     match cli.command {
         Command::Decode(a) => decode(a),
         Command::Synth(a) => synth_cmd(a),
+        Command::Budget(a) => budget_cmd(a),
     }
 }

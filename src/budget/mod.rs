@@ -41,6 +41,7 @@
 
 mod airtime;
 mod energy;
+mod input;
 mod render;
 mod rules;
 
@@ -50,6 +51,7 @@ pub use energy::{
     pulse_energy_uj, CodeEnergy, Divider, EnergyProfile, EnergySetup, HarvesterProfile,
     HarvesterSummary, PressEnergy, StoreRun, SupplyProfile, TransmitterProfile,
 };
+pub use input::from_decode_report;
 pub use render::{render_text, write_csv};
 pub use rules::{
     duty_cycle_correction_db, eirp_dbm_from_field, fcc_15231b_limit_uv_m, fcc_15231e_limit_uv_m,
