@@ -6,7 +6,10 @@ use ooksift::source::{open, OpenOptions};
 fn main() -> Result<(), Box<dyn std::error::Error>> {
     let args: Vec<String> = std::env::args().collect();
     let path = args.get(1).ok_or("usage: dump_marks CAPTURE [RATE]")?;
-    let opts = OpenOptions { rate_hz: args.get(2).and_then(|r| r.parse().ok()), ..OpenOptions::default() };
+    let opts = OpenOptions {
+        rate_hz: args.get(2).and_then(|r| r.parse().ok()),
+        ..OpenOptions::default()
+    };
     let mut src = open(path, &opts)?;
     let rate = src.info().rate.hz();
     let d = WideEnvelope::decimation_for(rate, 250_000.0);
@@ -24,8 +27,14 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     let mut prev: Option<f64> = None;
     for m in &marks {
         let space = prev.map(|p| (m.rise - p) * us);
-        println!("rise {:10.1} us  mark {:8.1} us  space-before {:>10}  level {:.3} noise {:.4}",
-            m.rise * us, m.width() * us, space.map_or("-".into(), |s| format!("{s:.1}")), m.level, m.noise);
+        println!(
+            "rise {:10.1} us  mark {:8.1} us  space-before {:>10}  level {:.3} noise {:.4}",
+            m.rise * us,
+            m.width() * us,
+            space.map_or("-".into(), |s| format!("{s:.1}")),
+            m.level,
+            m.noise
+        );
         prev = Some(m.fall);
     }
     Ok(())

@@ -21,12 +21,20 @@ fn main() {
             for &(r, f) in &truth {
                 let lo = (x - 0.5f64).max(r);
                 let hi = (x + 0.5f64).min(f);
-                if hi > lo { v += hi - lo; }
+                if hi > lo {
+                    v += hi - lo;
+                }
             }
             env.push(0.05 + 0.6 * v as f32 + noise * rng.gauss() as f32);
         }
         let h = smooth / 2;
-        let sm: Vec<f32> = (0..n).map(|k| { let lo = k.saturating_sub(h); let hi = (k + h + 1).min(n); env[lo..hi].iter().sum::<f32>() / (hi - lo) as f32 }).collect();
+        let sm: Vec<f32> = (0..n)
+            .map(|k| {
+                let lo = k.saturating_sub(h);
+                let hi = (k + h + 1).min(n);
+                env[lo..hi].iter().sum::<f32>() / (hi - lo) as f32
+            })
+            .collect();
         let mut det = EdgeDetector::new(EdgeConfig::for_rate(rate));
         let mut marks = vec![];
         det.process(&sm, &[], &mut marks);
@@ -35,10 +43,12 @@ fn main() {
             let (floor, _) = det.floor_and_noise();
             ooksift::edges::refine_edges(&sm, floor, &mut marks, h + 3);
         }
-        let mut errs = vec![]; let mut rerr = vec![];
+        let mut errs = vec![];
+        let mut rerr = vec![];
         for m in &marks {
             if let Some(tr) = truth.iter().find(|tr| (tr.0 - m.rise).abs() < w / 2.0) {
-                errs.push(m.width() - w); rerr.push(m.rise - tr.0);
+                errs.push(m.width() - w);
+                rerr.push(m.rise - tr.0);
             }
         }
         let mean = errs.iter().sum::<f64>() / errs.len().max(1) as f64;

@@ -264,7 +264,11 @@ fn energy_profile(a: &BudgetArgs) -> Result<Option<EnergyProfile>, String> {
     }
     if let Some(kind) = &a.regulator {
         let divider = match (a.vref_v, a.r1_ohm, a.r2_ohm) {
-            (Some(vref_v), Some(r1_ohm), Some(r2_ohm)) => Some(Divider { vref_v, r1_ohm, r2_ohm }),
+            (Some(vref_v), Some(r1_ohm), Some(r2_ohm)) => Some(Divider {
+                vref_v,
+                r1_ohm,
+                r2_ohm,
+            }),
             (None, None, None) => None,
             _ => return Err("--vref-v, --r1-ohm and --r2-ohm go together".into()),
         };
@@ -327,11 +331,25 @@ fn energy_profile(a: &BudgetArgs) -> Result<Option<EnergyProfile>, String> {
 
 fn budget_cmd(a: BudgetArgs) -> i32 {
     let rules = match a.rules.as_str() {
-        "us" => Rules { us: true, eu: false },
-        "eu" => Rules { us: false, eu: true },
+        "us" => Rules {
+            us: true,
+            eu: false,
+        },
+        "eu" => Rules {
+            us: false,
+            eu: true,
+        },
         "all" => Rules { us: true, eu: true },
-        "none" => Rules { us: false, eu: false },
-        other => return fail(&a.input, format!("--rules {other}: use us, eu, all or none")),
+        "none" => Rules {
+            us: false,
+            eu: false,
+        },
+        other => {
+            return fail(
+                &a.input,
+                format!("--rules {other}: use us, eu, all or none"),
+            )
+        }
     };
     let profile = match energy_profile(&a) {
         Ok(p) => p,
@@ -372,7 +390,11 @@ fn budget_cmd(a: BudgetArgs) -> i32 {
 /// Prints to stdout; a closed pipe ends the program quietly.
 fn emit(text: &str) {
     let mut out = std::io::stdout().lock();
-    if out.write_all(text.as_bytes()).and_then(|_| out.flush()).is_err() {
+    if out
+        .write_all(text.as_bytes())
+        .and_then(|_| out.flush())
+        .is_err()
+    {
         std::process::exit(0);
     }
 }

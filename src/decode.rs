@@ -14,12 +14,12 @@
 
 use crate::bursts::{Burst, BurstConfig, BurstSplitter};
 use crate::coding;
-use num_complex::Complex32;
 use crate::edges::{EdgeConfig, EdgeDetector, Mark};
 use crate::frames::{self, PressDecode};
 use crate::front::envelope::{EnvelopeBlock, WideEnvelope};
 use crate::report::{CaptureSummary, CodeReport, DecodeReport, CAUTION};
 use crate::source::{self, CaptureInfo, OpenOptions, SampleSource, Samples, SourceError};
+use num_complex::Complex32;
 
 /// Errors of the decode layer.
 #[derive(Debug, thiserror::Error)]
@@ -145,9 +145,8 @@ impl Decoder {
             None if self.edges.in_mark() => self.hist_start + self.hist.len() as u64,
             None => (self.hist_start + self.hist.len() as u64).saturating_sub(self.margin as u64),
         };
-        let keep_from = keep_from.max(
-            (self.hist_start + self.hist.len() as u64).saturating_sub(self.max_hist as u64),
-        );
+        let keep_from = keep_from
+            .max((self.hist_start + self.hist.len() as u64).saturating_sub(self.max_hist as u64));
         // An open mark's own samples are still needed.
         let keep_from = keep_from.min(self.hist_start + self.hist.len() as u64);
         if keep_from > self.hist_start {
@@ -242,8 +241,23 @@ impl Decoder {
             let first = frames::decode_press(&b);
             let second = self.reslice(&b);
             if std::env::var_os("OOKSIFT_DEBUG").is_some() {
-                let d = |p: &Option<PressDecode>| p.as_ref().map(|p| (p.frames.len(), p.partial_frames, frames::bit_string(&p.bits)));
-                eprintln!("burst {:.4}..{:.4} s, {} marks: first {:?} second {:?}", self.info.rate.to_s(b.start()), self.info.rate.to_s(b.end()), b.marks.len(), d(&first), d(&second));
+                let d = |p: &Option<PressDecode>| {
+                    p.as_ref().map(|p| {
+                        (
+                            p.frames.len(),
+                            p.partial_frames,
+                            frames::bit_string(&p.bits),
+                        )
+                    })
+                };
+                eprintln!(
+                    "burst {:.4}..{:.4} s, {} marks: first {:?} second {:?}",
+                    self.info.rate.to_s(b.start()),
+                    self.info.rate.to_s(b.end()),
+                    b.marks.len(),
+                    d(&first),
+                    d(&second)
+                );
             }
             match better(first, second) {
                 Some(p) if self.presses.len() < self.max_presses => self.presses.push(p),

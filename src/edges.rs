@@ -266,7 +266,8 @@ impl EdgeDetector {
     /// (ramps then cannot pull it down), else their mean (ramps are negligible in long marks).
     fn plateau(&self) -> f32 {
         let from = (self.det - self.rise_start) as usize;
-        let to = (self.first_below.saturating_sub(self.rise_start) as usize).min(self.rise_buf.len());
+        let to =
+            (self.first_below.saturating_sub(self.rise_start) as usize).min(self.rise_buf.len());
         let end_in_buf = self.first_below < self.rise_start + self.rise_buf.len() as u64;
         if end_in_buf && to > from {
             let mut v: Vec<f32> = self.rise_buf[from..to].to_vec();
@@ -378,7 +379,11 @@ pub fn refine_edges(env: &[f32], floor: f32, marks: &mut [Mark], reach: usize) {
         if level <= 0.0 {
             continue;
         }
-        let before = if i > 0 { r - old[i - 1].1 } else { f64::INFINITY };
+        let before = if i > 0 {
+            r - old[i - 1].1
+        } else {
+            f64::INFINITY
+        };
         let after = old.get(i + 1).map_or(f64::INFINITY, |nx| nx.0 - f);
         let width = f - r;
         let norm = |k: usize| ((env[k] - floor) / level) as f64;
@@ -473,7 +478,12 @@ mod tests {
     #[test]
     fn noisy_marks_keep_their_widths() {
         let truth: Vec<(f64, f64)> = (0..40)
-            .map(|i| (400.0 + i as f64 * 100.0, 430.0 + i as f64 * 100.0 + (i % 3) as f64 * 20.0))
+            .map(|i| {
+                (
+                    400.0 + i as f64 * 100.0,
+                    430.0 + i as f64 * 100.0 + (i % 3) as f64 * 20.0,
+                )
+            })
             .collect();
         let env = render(5000, &truth, 3.0, 0.05, 7);
         let marks = run(&env, 4096);

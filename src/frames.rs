@@ -10,7 +10,7 @@
 //! frame scores at least [`SINGLE_FRAME_SCORE`].
 
 use crate::bursts::Burst;
-use crate::coding::{self, LineCode, Layout};
+use crate::coding::{self, Layout, LineCode};
 use crate::timing::median;
 use num_complex::Complex64;
 
@@ -134,7 +134,10 @@ pub fn decode_press(burst: &Burst) -> Option<PressDecode> {
     let mut mode = (0usize, 0usize);
     let mut i = 0;
     while i < lengths.len() {
-        let j = lengths[i..].iter().take_while(|&&l| l == lengths[i]).count();
+        let j = lengths[i..]
+            .iter()
+            .take_while(|&&l| l == lengths[i])
+            .count();
         if j >= mode.1 {
             mode = (lengths[i], j);
         }
@@ -146,7 +149,12 @@ pub fn decode_press(burst: &Burst) -> Option<PressDecode> {
     }
     if std::env::var_os("OOKSIFT_DEBUG").is_some() {
         for f in &best.frames {
-            eprintln!("  frame {} marks {}..{}", bit_string(&f.bits), f.first_mark, f.last_mark);
+            eprintln!(
+                "  frame {} marks {}..{}",
+                bit_string(&f.bits),
+                f.first_mark,
+                f.last_mark
+            );
         }
     }
     let full: Vec<_> = best.frames.iter().filter(|f| f.bits.len() == len).collect();
@@ -245,7 +253,10 @@ mod tests {
         // Values computed by tests/reference/make_reference_captures.py (numpy script, its
         // own FNV-1a implementation) and stored in its truth files.
         assert_eq!(key_id("pwm", "110011110010101100010010"), "pwm24-5c9f4e1f");
-        assert_eq!(key_id("ppm", "11101101011101011100001011101011"), "ppm32-527c0c84");
+        assert_eq!(
+            key_id("ppm", "11101101011101011100001011101011"),
+            "ppm32-527c0c84"
+        );
         assert_eq!(key_id("pwm", "0001111001010011"), "pwm16-64a9fc8f");
     }
 

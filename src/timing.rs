@@ -135,7 +135,10 @@ mod tests {
         spaces.extend([3100.0, 3095.0]);
         let c = clusters(&spaces, 0.25);
         assert_eq!(c.len(), 3);
-        assert_eq!(c.iter().map(|x| x.count).collect::<Vec<_>>(), vec![24, 24, 2]);
+        assert_eq!(
+            c.iter().map(|x| x.count).collect::<Vec<_>>(),
+            vec![24, 24, 2]
+        );
         let thr = frame_gap_threshold(&spaces).expect("has repeats");
         assert!(thr > 302.0 && thr < 3095.0, "{thr}");
     }

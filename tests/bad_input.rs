@@ -42,7 +42,11 @@ fn empty_file() {
     let d = tempfile::tempdir().expect("tempdir");
     let p = d.path().join("empty.cu8");
     std::fs::write(&p, b"").expect("write");
-    expect_error(&["decode", p.to_str().expect("utf-8"), "--rate", "250000"], &p, "empty");
+    expect_error(
+        &["decode", p.to_str().expect("utf-8"), "--rate", "250000"],
+        &p,
+        "empty",
+    );
 }
 
 #[test]
@@ -50,7 +54,11 @@ fn odd_byte_count_for_the_format() {
     let d = tempfile::tempdir().expect("tempdir");
     let p = d.path().join("odd.ci16_le");
     std::fs::write(&p, vec![0u8; 4 * 1000 + 3]).expect("write");
-    expect_error(&["decode", p.to_str().expect("utf-8"), "--rate", "1e6"], &p, "middle of a sample");
+    expect_error(
+        &["decode", p.to_str().expect("utf-8"), "--rate", "1e6"],
+        &p,
+        "middle of a sample",
+    );
 }
 
 #[test]
@@ -69,7 +77,11 @@ fn sigmf_with_a_missing_field() {
     let meta = d.path().join("rec.sigmf-meta");
     std::fs::write(d.path().join("rec.sigmf-data"), vec![0u8; 4000]).expect("write");
     std::fs::write(&meta, r#"{"global":{"core:version":"1.2.0","core:sample_rate":1e6},"captures":[],"annotations":[]}"#).expect("write");
-    expect_error(&["decode", meta.to_str().expect("utf-8")], &meta, "core:datatype");
+    expect_error(
+        &["decode", meta.to_str().expect("utf-8")],
+        &meta,
+        "core:datatype",
+    );
 }
 
 #[test]
@@ -78,7 +90,11 @@ fn sigmf_with_an_unknown_datatype() {
     let meta = d.path().join("rec.sigmf-meta");
     std::fs::write(d.path().join("rec.sigmf-data"), vec![0u8; 4000]).expect("write");
     std::fs::write(&meta, r#"{"global":{"core:datatype":"cu8_le","core:version":"1.2.0","core:sample_rate":1e6},"captures":[],"annotations":[]}"#).expect("write");
-    expect_error(&["decode", meta.to_str().expect("utf-8")], &meta, "unknown datatype 'cu8_le'");
+    expect_error(
+        &["decode", meta.to_str().expect("utf-8")],
+        &meta,
+        "unknown datatype 'cu8_le'",
+    );
 }
 
 #[test]
@@ -86,7 +102,18 @@ fn unknown_datatype_on_the_command_line() {
     let d = tempfile::tempdir().expect("tempdir");
     let p = d.path().join("x.bin");
     std::fs::write(&p, vec![0u8; 100]).expect("write");
-    expect_error(&["decode", p.to_str().expect("utf-8"), "--format", "cu12", "--rate", "1e6"], &p, "unknown datatype");
+    expect_error(
+        &[
+            "decode",
+            p.to_str().expect("utf-8"),
+            "--format",
+            "cu12",
+            "--rate",
+            "1e6",
+        ],
+        &p,
+        "unknown datatype",
+    );
 }
 
 #[test]
@@ -94,7 +121,11 @@ fn sigmf_with_a_missing_data_file() {
     let d = tempfile::tempdir().expect("tempdir");
     let meta = d.path().join("lonely.sigmf-meta");
     std::fs::write(&meta, r#"{"global":{"core:datatype":"cf32_le","core:version":"1.2.0","core:sample_rate":1e6},"captures":[],"annotations":[]}"#).expect("write");
-    expect_error(&["decode", meta.to_str().expect("utf-8")], &meta, "lonely.sigmf-data");
+    expect_error(
+        &["decode", meta.to_str().expect("utf-8")],
+        &meta,
+        "lonely.sigmf-data",
+    );
 }
 
 #[test]
@@ -109,7 +140,11 @@ fn nan_and_infinite_samples() {
             bytes.extend_from_slice(&0.0f32.to_le_bytes());
         }
         std::fs::write(&p, bytes).expect("write");
-        expect_error(&["decode", p.to_str().expect("utf-8"), "--rate", "1e6"], &p, "sample 777 is not a finite number");
+        expect_error(
+            &["decode", p.to_str().expect("utf-8"), "--rate", "1e6"],
+            &p,
+            "sample 777 is not a finite number",
+        );
     }
 }
 
@@ -126,9 +161,17 @@ fn an_absurd_rate_and_a_missing_file() {
     let d = tempfile::tempdir().expect("tempdir");
     let p = d.path().join("x.cu8");
     std::fs::write(&p, vec![128u8; 1000]).expect("write");
-    expect_error(&["decode", p.to_str().expect("utf-8"), "--rate", "-5"], &p, "absurd sample rate");
+    expect_error(
+        &["decode", p.to_str().expect("utf-8"), "--rate", "-5"],
+        &p,
+        "absurd sample rate",
+    );
     let missing = d.path().join("nowhere.cu8");
-    expect_error(&["decode", missing.to_str().expect("utf-8"), "--rate", "1e6"], &missing, "cannot read");
+    expect_error(
+        &["decode", missing.to_str().expect("utf-8"), "--rate", "1e6"],
+        &missing,
+        "cannot read",
+    );
 }
 
 #[test]

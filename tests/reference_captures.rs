@@ -33,7 +33,13 @@ fn sigmf_pwm_lamp_matches_its_numpy_truth() {
     let r = decode_json(&dir().join("ref-lamp-pwm.sigmf-meta"), &[]);
     let t = read_json(&dir().join("ref-lamp-pwm.truth.json"));
     assert_valid("decode.schema.json", &r);
-    assert_eq!(r["capture"]["center_frequency_hz"].as_f64(), t["capture"]["center_frequency_hz"].as_f64());
-    assert_eq!(r["capture"]["sample_rate_hz"].as_f64(), t["capture"]["sample_rate_hz"].as_f64());
+    assert_eq!(
+        r["capture"]["center_frequency_hz"].as_f64(),
+        t["capture"]["center_frequency_hz"].as_f64()
+    );
+    assert_eq!(
+        r["capture"]["sample_rate_hz"].as_f64(),
+        t["capture"]["sample_rate_hz"].as_f64()
+    );
     assert_report_matches(&r, &t, 1000.0, "ref-lamp-pwm.sigmf");
 }

@@ -61,8 +61,11 @@ pub(super) fn slice(bf: &BurstFrames<'_>) -> Option<Candidate> {
         return None;
     }
     let p = median(&periods);
-    let consistent =
-        periods.iter().filter(|&&x| (x - p).abs() <= 0.2 * p).count() as f64 / periods.len() as f64;
+    let consistent = periods
+        .iter()
+        .filter(|&&x| (x - p).abs() <= 0.2 * p)
+        .count() as f64
+        / periods.len() as f64;
     let score = separation_score(ratio) * consistent;
     let short_space = match split_two(&spaces) {
         Some((lo, hi)) if hi.mean / lo.mean.max(1e-9) >= 1.5 => Some(lo.mean),

@@ -88,7 +88,8 @@ impl WideEnvelope {
 
     /// Output-sample index at capture position `pos` (inverse of [`WideEnvelope::position_of`]).
     pub fn index_of(&self, pos: f64) -> f64 {
-        (pos - (self.decim as f64 - 1.0) / 2.0) / self.decim as f64 + (self.smooth as f64 - 1.0) / 2.0
+        (pos - (self.decim as f64 - 1.0) / 2.0) / self.decim as f64
+            + (self.smooth as f64 - 1.0) / 2.0
     }
 
     /// Forgets all state, as at the start of a capture.
@@ -103,8 +104,12 @@ impl WideEnvelope {
         out.env.push((self.ring_sum * inv) as f32);
         if iq {
             let old = std::mem::replace(&mut self.lag_ring[self.ring_pos], l);
-            self.lag_sum += Complex64::new(l.re as f64 - old.re as f64, l.im as f64 - old.im as f64);
-            out.lag.push(Complex32::new(self.lag_sum.re as f32, self.lag_sum.im as f32));
+            self.lag_sum +=
+                Complex64::new(l.re as f64 - old.re as f64, l.im as f64 - old.im as f64);
+            out.lag.push(Complex32::new(
+                self.lag_sum.re as f32,
+                self.lag_sum.im as f32,
+            ));
         }
         self.ring_pos = (self.ring_pos + 1) % self.smooth;
     }
@@ -135,7 +140,12 @@ impl WideEnvelope {
                     self.acc += x as f64;
                     self.n += 1;
                     if self.n == d {
-                        self.emit((self.acc * scale) as f32, Complex32::new(0.0, 0.0), out, false);
+                        self.emit(
+                            (self.acc * scale) as f32,
+                            Complex32::new(0.0, 0.0),
+                            out,
+                            false,
+                        );
                         self.acc = 0.0;
                         self.n = 0;
                     }

@@ -12,9 +12,10 @@ fn opt(x: Option<f64>, digits: usize) -> String {
 pub fn render_text(r: &DecodeReport) -> String {
     let mut s = String::new();
     let c = &r.capture;
-    let centre = c
-        .center_frequency_hz
-        .map_or_else(|| "centre unknown".to_string(), |f| format!("centre {:.6} MHz", f / 1e6));
+    let centre = c.center_frequency_hz.map_or_else(
+        || "centre unknown".to_string(),
+        |f| format!("centre {:.6} MHz", f / 1e6),
+    );
     let _ = writeln!(s, "capture  {}", c.path);
     let _ = writeln!(
         s,

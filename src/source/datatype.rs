@@ -208,8 +208,7 @@ impl Datatype {
             Component::I16 => conv!(2, i16, |v: i16| v as f32 / 32768.0),
             Component::U16 => conv!(2, u16, |v: u16| (v as f32 - 32767.5) / 32767.5),
             Component::I32 => conv!(4, i32, |v: i32| (v as f64 / 2147483648.0) as f32),
-            Component::U32 => conv!(4, u32, |v: u32| ((v as f64 - 2147483647.5)
-                / 2147483647.5)
+            Component::U32 => conv!(4, u32, |v: u32| ((v as f64 - 2147483647.5) / 2147483647.5)
                 as f32),
             Component::F32 => conv!(4, f32, |v: f32| v),
             Component::F64 => conv!(8, f64, |v: f64| v as f32),
@@ -272,7 +271,9 @@ mod tests {
     #[test]
     fn rejects_strings_outside_the_grammar() {
         // facts.md §3.2: the schema regex is looser than the ABNF; we follow the ABNF.
-        for s in ["cu8_le", "cf32", "ci16", "x", "", "c", "cf16_le", "ri8_be", "cf32_me"] {
+        for s in [
+            "cu8_le", "cf32", "ci16", "x", "", "c", "cf16_le", "ri8_be", "cf32_me",
+        ] {
             assert!(s.parse::<Datatype>().is_err(), "{s}");
         }
     }
@@ -291,7 +292,11 @@ mod tests {
             ("ri16_le", 2),
             ("rf32_le", 4),
         ] {
-            assert_eq!(s.parse::<Datatype>().map(|d| d.sample_bytes()), Ok(n), "{s}");
+            assert_eq!(
+                s.parse::<Datatype>().map(|d| d.sample_bytes()),
+                Ok(n),
+                "{s}"
+            );
         }
     }
 

@@ -281,7 +281,11 @@ pub fn open(path: &str, opts: &OpenOptions) -> Result<Box<dyn SampleSource>> {
     };
     match chosen {
         Chosen::Wav => Ok(Box::new(WavSource::new(
-            path, reader, file_len, opts.rate_hz, block,
+            path,
+            reader,
+            file_len,
+            opts.rate_hz,
+            block,
         )?)),
         Chosen::Raw(datatype) => {
             let rate = validated_rate(opts.rate_hz)?;
@@ -305,7 +309,10 @@ mod tests {
 
     #[test]
     fn names_and_extensions_choose_formats() {
-        assert_eq!(choose_by_path("a/b.cu8"), Some(Chosen::Raw("cu8".parse().expect("ok"))));
+        assert_eq!(
+            choose_by_path("a/b.cu8"),
+            Some(Chosen::Raw("cu8".parse().expect("ok")))
+        );
         assert_eq!(
             choose_by_path("x.cf32_le"),
             Some(Chosen::Raw("cf32_le".parse().expect("ok")))

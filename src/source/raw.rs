@@ -189,14 +189,20 @@ mod tests {
         let bytes: Vec<u8> = (0..=255u8).cycle().take(4000).collect();
         let whole = collect("ci16_le", bytes.clone(), 1 << 20, usize::MAX).expect("reads");
         for (block, step) in [(1, 1), (7, 3), (4096, 5), (3, 4096)] {
-            assert_eq!(collect("ci16_le", bytes.clone(), block, step).expect("reads"), whole);
+            assert_eq!(
+                collect("ci16_le", bytes.clone(), block, step).expect("reads"),
+                whole
+            );
         }
     }
 
     #[test]
     fn a_split_last_sample_is_an_error() {
         let err = collect("cf32_le", vec![0u8; 8 * 3 + 5], 2, 7).expect_err("partial");
-        assert!(matches!(err, SourceError::PartialSample { trailing: 5, .. }), "{err}");
+        assert!(
+            matches!(err, SourceError::PartialSample { trailing: 5, .. }),
+            "{err}"
+        );
     }
 
     #[test]
@@ -206,6 +212,9 @@ mod tests {
             bytes.extend_from_slice(&v.to_le_bytes());
         }
         let err = collect("rf32_le", bytes, 16, 16).expect_err("NaN");
-        assert!(matches!(err, SourceError::NonFinite { index: 2, .. }), "{err}");
+        assert!(
+            matches!(err, SourceError::NonFinite { index: 2, .. }),
+            "{err}"
+        );
     }
 }

@@ -138,8 +138,7 @@ impl SigmfSource {
         };
         let reader: Box<dyn Read> = Box::new(BufReader::with_capacity(1 << 16, file));
         Ok(SigmfSource {
-            inner: RawSource::new(info, reader, opts.block_samples.max(1))
-                .with_byte_limit(payload),
+            inner: RawSource::new(info, reader, opts.block_samples.max(1)).with_byte_limit(payload),
         })
     }
 }

@@ -185,12 +185,15 @@ impl PressSpec {
         let line_code: LineCode = self.line_code.parse().map_err(SynthError::Spec)?;
         let bits = self.bit_string()?;
         if !(self.unit_us.is_finite() && self.unit_us > 0.0) {
-            return Err(SynthError::Spec(format!("unit_us {} must be > 0", self.unit_us)));
+            return Err(SynthError::Spec(format!(
+                "unit_us {} must be > 0",
+                self.unit_us
+            )));
         }
         if self.repeats == 0 {
             return Err(SynthError::Spec("repeats must be at least 1".into()));
         }
-        if !(self.clock_error.abs() < 0.5) {
+        if self.clock_error.is_nan() || self.clock_error.abs() >= 0.5 {
             return Err(SynthError::Spec("clock_error must be within ±0.5".into()));
         }
         let (zero, one, header, gap) = match line_code {

@@ -296,7 +296,7 @@ fn wav_encode(bits: u16, comps: &[f32], out: &mut Vec<u8>) {
 /// `.sigmf-meta`; the `.sigmf-data` goes beside it) and its truth sidecar. Returns the truth.
 pub fn write_capture(spec: &SynthSpec, out: &Path, force: bool) -> Result<TruthFile, SynthError> {
     let fs_hz = spec.rate_hz;
-    if !(fs_hz.is_finite() && fs_hz >= 1.0 && fs_hz <= 1e9) {
+    if !(fs_hz.is_finite() && (1.0..=1e9).contains(&fs_hz)) {
         return Err(SynthError::Spec(format!("rate_hz {fs_hz} is not usable")));
     }
     let kind = kind_of(spec)?;
@@ -439,8 +439,8 @@ pub fn write_capture(spec: &SynthSpec, out: &Path, force: bool) -> Result<TruthF
             "captures": [capture],
             "annotations": []
         });
-        let text = serde_json::to_string_pretty(&doc)
-            .map_err(|e| SynthError::Spec(e.to_string()))?;
+        let text =
+            serde_json::to_string_pretty(&doc).map_err(|e| SynthError::Spec(e.to_string()))?;
         crate::output::write_atomic(meta, text.as_bytes(), force).map_err(out_err)?;
     }
     let truth = TruthFile {
@@ -456,8 +456,7 @@ pub fn write_capture(spec: &SynthSpec, out: &Path, force: bool) -> Result<TruthF
         codes: truth_codes(&presses, iq),
         spec: Some(spec.clone()),
     };
-    let text =
-        serde_json::to_string_pretty(&truth).map_err(|e| SynthError::Spec(e.to_string()))?;
+    let text = serde_json::to_string_pretty(&truth).map_err(|e| SynthError::Spec(e.to_string()))?;
     crate::output::write_atomic(&tpath, text.as_bytes(), force).map_err(out_err)?;
     Ok(truth)
 }
@@ -468,12 +467,18 @@ mod tests {
 
     #[test]
     fn truth_paths_drop_capture_extensions() {
-        assert_eq!(truth_path(Path::new("a/gate.cu8")), PathBuf::from("a/gate.truth.json"));
+        assert_eq!(
+            truth_path(Path::new("a/gate.cu8")),
+            PathBuf::from("a/gate.truth.json")
+        );
         assert_eq!(
             truth_path(Path::new("rec.sigmf-meta")),
             PathBuf::from("rec.truth.json")
         );
-        assert_eq!(truth_path(Path::new("x.wav")), PathBuf::from("x.truth.json"));
+        assert_eq!(
+            truth_path(Path::new("x.wav")),
+            PathBuf::from("x.truth.json")
+        );
     }
 
     #[test]
@@ -486,7 +491,8 @@ mod tests {
                 rate_hz: 48_000.0,
                 ..SynthSpec::default()
             };
-            spec.presses.push(super::super::PressSpec::new("pwm", "0xa5"));
+            spec.presses
+                .push(super::super::PressSpec::new("pwm", "0xa5"));
             let p = dir.path().join(format!("t{bits}.wav"));
             let truth = write_capture(&spec, &p, false).expect("writes");
             let r = hound::WavReader::open(&p).expect("hound reads it");
