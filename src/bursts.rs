@@ -43,7 +43,8 @@ impl Burst {
 }
 
 /// Removes glitches relative to the burst's own timing: a space or mark shorter than
-/// `fraction` × the burst's width-weighted median element (marks and spaces alike) is noise —
+/// `fraction` × the burst's width-weighted median element (marks and spaces alike, widths
+/// above four times the plain median left out) is noise —
 /// a dip inside a mark, or a spike inside a space. Dips are bridged (the two marks become
 /// one); spikes are dropped. Returns how many glitches were removed.
 ///
@@ -56,6 +57,10 @@ pub fn merge_glitches(marks: &mut Vec<Mark>, fraction: f64) -> usize {
     let mut w: Vec<f64> = marks.iter().map(Mark::width).collect();
     w.extend(marks.windows(2).map(|p| p[1].rise - p[0].fall));
     w.sort_by(f64::total_cmp);
+    // Sync gaps between repeats are few but long: leave widths far above the plain median
+    // out of the weighting, or they would become the reference.
+    let plain = w[w.len() / 2];
+    w.retain(|&x| x <= 4.0 * plain);
     let total: f64 = w.iter().sum();
     let mut acc = 0.0;
     let mut reference = w[w.len() - 1];

@@ -66,6 +66,13 @@ struct DecodeArgs {
     /// Silence in ms that always separates two presses (default 80).
     #[arg(long, value_name = "MS")]
     press_gap_ms: Option<f64>,
+    /// Read every burst with this line code: pwm, ppm, manchester, diff_manchester or nrz.
+    #[arg(long, value_name = "CODE")]
+    line_code: Option<String>,
+    /// Manchester bit convention: ieee (IEEE 802.3, a rising mid-bit transition is 1) or
+    /// thomas (the opposite).
+    #[arg(long, value_name = "CONVENTION", default_value = "ieee")]
+    manchester: String,
 }
 
 #[derive(Args, Debug)]
@@ -405,9 +412,23 @@ fn fail(subject: &str, msg: impl std::fmt::Display) -> i32 {
 }
 
 fn decode(args: DecodeArgs) -> i32 {
+    let line_code = match args.line_code.as_deref().map(str::parse) {
+        None => None,
+        Some(Ok(lc)) => Some(lc),
+        Some(Err(e)) => return fail("--line-code", e),
+    };
+    let manchester_thomas = match args.manchester.as_str() {
+        "ieee" => false,
+        "thomas" => true,
+        other => return fail("--manchester", format!("'{other}': use ieee or thomas")),
+    };
     let opts = DecodeOptions {
         open: args.input.open_options(),
         press_gap_ms: args.press_gap_ms,
+        press: ooksift::frames::PressOptions {
+            line_code,
+            manchester_thomas,
+        },
         ..DecodeOptions::default()
     };
     let mut status = 0;

@@ -43,6 +43,8 @@ pub struct DecodeOptions {
     pub press_gap_ms: Option<f64>,
     /// Presses kept at most (a limit reported when hit).
     pub max_presses: usize,
+    /// Line-code choices (forced code, Manchester convention).
+    pub press: frames::PressOptions,
 }
 
 impl Default for DecodeOptions {
@@ -53,6 +55,7 @@ impl Default for DecodeOptions {
             smooth_us: 60.0,
             press_gap_ms: None,
             max_presses: 10_000,
+            press: frames::PressOptions::default(),
         }
     }
 }
@@ -78,6 +81,7 @@ pub struct Decoder {
     samples: u64,
     undecoded: usize,
     max_presses: usize,
+    press_opts: frames::PressOptions,
     notes: Vec<String>,
 }
 
@@ -110,6 +114,7 @@ impl Decoder {
             samples: 0,
             undecoded: 0,
             max_presses: opts.max_presses,
+            press_opts: opts.press,
             notes: Vec::new(),
             info,
         }
@@ -212,10 +217,13 @@ impl Decoder {
                 ..m
             })
             .collect();
-        frames::decode_press(&Burst {
-            marks,
-            capped: burst.capped,
-        })
+        frames::decode_press_with(
+            &Burst {
+                marks,
+                capped: burst.capped,
+            },
+            &self.press_opts,
+        )
     }
 
     fn route_marks(&mut self) {
@@ -238,7 +246,7 @@ impl Decoder {
                     self.info.rate.to_s(b.start())
                 ));
             }
-            let first = frames::decode_press(&b);
+            let first = frames::decode_press_with(&b, &self.press_opts);
             let second = self.reslice(&b);
             if std::env::var_os("OOKSIFT_DEBUG").is_some() {
                 let d = |p: &Option<PressDecode>| {

@@ -114,15 +114,46 @@ pub fn key_id(line_code: &str, bits: &str) -> String {
     format!("{line_code}{}-{folded:08x}", bits.len())
 }
 
+/// Choices that change how a press is read.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct PressOptions {
+    /// Read every burst with this line code only.
+    pub line_code: Option<LineCode>,
+    /// Manchester in the G. E. Thomas convention (a falling mid-bit transition is 1) instead
+    /// of IEEE 802.3's.
+    pub manchester_thomas: bool,
+}
+
 /// Decodes one burst into a press, or `None` when no line code explains it well enough.
 pub fn decode_press(burst: &Burst) -> Option<PressDecode> {
+    decode_press_with(burst, &PressOptions::default())
+}
+
+/// [`decode_press`] with options.
+pub fn decode_press_with(burst: &Burst, opts: &PressOptions) -> Option<PressDecode> {
     let mut cleaned = burst.marks.clone();
     crate::bursts::merge_glitches(&mut cleaned, GLITCH_FRACTION);
     let burst = &Burst {
         marks: cleaned,
         capped: burst.capped,
     };
-    let candidates = coding::assess(&burst.marks);
+    let mut candidates = coding::assess(&burst.marks);
+    if let Some(lc) = opts.line_code {
+        // Keep the forced code first and the best other one as the runner-up.
+        candidates.sort_by_key(|c| c.line_code != lc);
+        if candidates.first().map(|c| c.line_code) != Some(lc) {
+            return None;
+        }
+    }
+    if opts.manchester_thomas {
+        for c in &mut candidates {
+            if c.line_code == LineCode::Manchester {
+                for f in &mut c.frames {
+                    f.bits.iter_mut().for_each(|b| *b = !*b);
+                }
+            }
+        }
+    }
     let best = candidates.first()?;
     if best.score < MIN_SCORE {
         return None;
@@ -148,6 +179,12 @@ pub fn decode_press(burst: &Burst) -> Option<PressDecode> {
         return None;
     }
     if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+        for c in &candidates {
+            eprintln!(
+                "  candidate {} score {:.3} unit {:.1}",
+                c.line_code, c.score, c.unit
+            );
+        }
         for f in &best.frames {
             eprintln!(
                 "  frame {} marks {}..{}",

@@ -2,10 +2,12 @@
 //!
 //! [`assess`] splits a burst into frames at its sync spaces, runs every slicer, and returns
 //! the candidates best first. Scores lie in [0, 1]: how well the hypothesis explains the
-//! measured widths. Ties go to the earlier slicer in [`SLICERS`] order (PWM, then PPM).
+//! measured widths. Ties go to the earlier slicer in [`SLICERS`] order (PWM, PPM,
+//! Manchester, differential Manchester, NRZ).
 //!
 //! Bit conventions (DESIGN.md): PWM — the wider mark is 1; PPM — the wider space is 1.
 
+pub mod chips;
 mod ppm;
 mod pwm;
 
@@ -23,6 +25,13 @@ pub enum LineCode {
     Pwm,
     /// Pulse-distance: alike marks; the space between two marks is the bit; wider is 1.
     Ppm,
+    /// Manchester, IEEE 802.3 convention by default (a rising mid-bit transition is 1).
+    Manchester,
+    /// Differential Manchester: 1 = no transition at the bit start.
+    #[serde(rename = "diff_manchester")]
+    DiffManchester,
+    /// NRZ: one unit per bit, mark = 1.
+    Nrz,
 }
 
 impl LineCode {
@@ -31,6 +40,9 @@ impl LineCode {
         match self {
             LineCode::Pwm => "pwm",
             LineCode::Ppm => "ppm",
+            LineCode::Manchester => "manchester",
+            LineCode::DiffManchester => "diff_manchester",
+            LineCode::Nrz => "nrz",
         }
     }
 }
@@ -47,7 +59,12 @@ impl std::str::FromStr for LineCode {
         match s.to_ascii_lowercase().as_str() {
             "pwm" => Ok(LineCode::Pwm),
             "ppm" => Ok(LineCode::Ppm),
-            other => Err(format!("unknown line code '{other}' (pwm or ppm)")),
+            "manchester" => Ok(LineCode::Manchester),
+            "diff_manchester" => Ok(LineCode::DiffManchester),
+            "nrz" => Ok(LineCode::Nrz),
+            other => Err(format!(
+                "unknown line code '{other}' (pwm, ppm, manchester, diff_manchester or nrz)"
+            )),
         }
     }
 }
@@ -140,6 +157,10 @@ pub struct Layout {
     pub closing_mark: Option<f64>,
     /// Space between repeats.
     pub gap: Option<f64>,
+    /// Preamble bits (NRZ), reported apart from the data.
+    pub preamble: Option<Vec<bool>>,
+    /// Sync word bits (NRZ), reported apart from the data.
+    pub sync_word: Option<Vec<bool>>,
 }
 
 /// One hypothesis' reading of a burst.
@@ -161,7 +182,13 @@ pub struct Candidate {
 pub type Slicer = fn(&BurstFrames<'_>) -> Option<Candidate>;
 
 /// The registry of slicers, in tie-break order.
-pub const SLICERS: &[Slicer] = &[pwm::slice, ppm::slice];
+pub const SLICERS: &[Slicer] = &[
+    pwm::slice,
+    ppm::slice,
+    chips::slice_manchester,
+    chips::slice_diff_manchester,
+    chips::slice_nrz,
+];
 
 /// Every slicer's candidate for a burst, best first.
 pub fn assess(marks: &[Mark]) -> Vec<Candidate> {
@@ -193,6 +220,8 @@ pub(crate) fn layout_of(bf: &BurstFrames<'_>, closing: &[f64]) -> Layout {
         closing_mark: (!closing.is_empty() && closing.len() * 2 >= bf.frames.len())
             .then(|| median(closing)),
         gap: (!bf.gaps.is_empty()).then(|| median(&bf.gaps)),
+        preamble: None,
+        sync_word: None,
     }
 }
 

@@ -63,7 +63,7 @@ pub(super) fn slice(bf: &BurstFrames<'_>) -> Option<Candidate> {
     let p = median(&periods);
     let consistent = periods
         .iter()
-        .filter(|&&x| (x - p).abs() <= 0.2 * p)
+        .filter(|&&x| (x - p).abs() <= 0.12 * p)
         .count() as f64
         / periods.len() as f64;
     let score = separation_score(ratio) * consistent;

@@ -92,6 +92,10 @@ pub struct Framing {
     pub gap_us: Option<f64>,
     /// The same four in units of `unit_us`: header mark, header space, closing mark, gap.
     pub in_units: [Option<f64>; 4],
+    /// Preamble bits ahead of the sync word (NRZ), not part of `bits`.
+    pub preamble: Option<String>,
+    /// Sync word between preamble and data (NRZ), not part of `bits`.
+    pub sync_word: Option<String>,
 }
 
 /// One frame on the timeline.
@@ -211,6 +215,8 @@ impl CodeReport {
                 in_u(l.closing_mark),
                 in_u(l.gap),
             ],
+            preamble: l.preamble.as_deref().map(bit_string),
+            sync_word: l.sync_word.as_deref().map(bit_string),
         };
         let timeline = ps
             .iter()

@@ -79,6 +79,12 @@ pub fn render_text(r: &DecodeReport) -> String {
             if let Some(g) = f.in_units[3] {
                 parts.push(format!("gap {g:.1}u"));
             }
+            if let Some(p) = &f.preamble {
+                parts.push(format!("preamble {p}"));
+            }
+            if let Some(w) = &f.sync_word {
+                parts.push(format!("sync word {w}"));
+            }
             if parts.is_empty() {
                 parts.push("no header, closing mark or repeats".into());
             }

@@ -113,8 +113,12 @@ pub struct PressSpec {
     pub header: Option<[f64; 2]>,
     /// Closing mark in units (default 1; 0 for none).
     pub closing_mark: Option<f64>,
-    /// Space between repeats in units (default PWM 31, PPM 40).
+    /// Space between repeats in units (default PWM 31, PPM 40, chip codes 20).
     pub gap_units: Option<f64>,
+    /// NRZ: alternating preamble bits before the sync word (default 16; 0 for none).
+    pub preamble_bits: Option<usize>,
+    /// NRZ: sync word between preamble and data, 0/1 or 0x-hex (default 0x3b91).
+    pub sync_word: Option<String>,
 }
 
 impl Default for PressSpec {
@@ -133,6 +137,8 @@ impl Default for PressSpec {
             header: None,
             closing_mark: None,
             gap_units: None,
+            preamble_bits: None,
+            sync_word: None,
         }
     }
 }
@@ -148,6 +154,8 @@ pub(crate) struct Layout {
     pub header: Option<[f64; 2]>,
     pub closing: Option<f64>,
     pub gap: f64,
+    /// Chip codes: the chips of one frame (1 = mark), one unit each.
+    pub chips: Option<Vec<u8>>,
 }
 
 impl PressSpec {
@@ -199,6 +207,25 @@ impl PressSpec {
         let (zero, one, header, gap) = match line_code {
             LineCode::Pwm => ([1.0, 3.0], [3.0, 1.0], None, 31.0),
             LineCode::Ppm => ([1.0, 1.0], [1.0, 3.0], Some([8.0, 4.0]), 40.0),
+            _ => ([1.0, 1.0], [1.0, 1.0], None, 20.0),
+        };
+        let bools: Vec<bool> = bits.chars().map(|c| c == '1').collect();
+        let chips = match line_code {
+            LineCode::Manchester => Some(crate::coding::chips::biphase_chips(&bools, false)),
+            LineCode::DiffManchester => Some(crate::coding::chips::biphase_chips(&bools, true)),
+            LineCode::Nrz => {
+                let n = self.preamble_bits.unwrap_or(16);
+                let sync = PressSpec {
+                    bits: self.sync_word.clone().unwrap_or_else(|| "0x3b91".into()),
+                    ..PressSpec::default()
+                }
+                .bit_string()?;
+                let mut c: Vec<u8> = (0..n).map(|i| u8::from(i % 2 == 0)).collect();
+                c.extend(sync.chars().map(|ch| u8::from(ch == '1')));
+                c.extend(bools.iter().map(|&b| u8::from(b)));
+                Some(c)
+            }
+            _ => None,
         };
         let header = match self.header {
             Some([m, _]) if m <= 0.0 => None,
@@ -217,8 +244,9 @@ impl PressSpec {
             zero: self.zero.unwrap_or(zero),
             one: self.one.unwrap_or(one),
             header,
-            closing,
+            closing: if chips.is_some() { None } else { closing },
             gap: self.gap_units.unwrap_or(gap),
+            chips,
         })
     }
 }
@@ -230,6 +258,21 @@ impl Layout {
         let u = self.unit_s;
         let mut t = 0.0;
         let mut marks = Vec::new();
+        if let Some(chips) = &self.chips {
+            // Marks are the runs of 1 chips; the frame ends with its last chip.
+            let mut i = 0;
+            while i < chips.len() {
+                if chips[i] == 1 {
+                    let j = chips[i..].iter().take_while(|&&c| c == 1).count();
+                    marks.push((i as f64 * u, (i + j) as f64 * u));
+                    i += j;
+                } else {
+                    i += 1;
+                }
+            }
+            let end = marks.last().map_or(0.0, |m| m.1);
+            return (marks, end + self.gap * u);
+        }
         if let Some([m, s]) = self.header {
             marks.push((t, t + m * u));
             t += (m + s) * u;
@@ -258,7 +301,8 @@ impl Layout {
 /// Parses a press given on the command line: `LINECODE:BITS[,key=value...]`.
 ///
 /// Keys: `unit_us`, `repeats`, `gap_ms` (silence before the press), `offset_hz`, `phase`,
-/// `clock_error`, `zero=M/S`, `one=M/S`, `header=M/S`, `closing=U`, `gap_units=U`.
+/// `clock_error`, `zero=M/S`, `one=M/S`, `header=M/S`, `closing=U`, `gap_units=U`, and for
+/// NRZ `preamble=N` (alternating bits) and `sync=BITS`.
 ///
 /// ```
 /// let p = ooksift::synth::parse_press("pwm:0xcf2b12,unit_us=350,repeats=5,offset_hz=20000").unwrap();
@@ -306,6 +350,13 @@ pub fn parse_press(text: &str) -> Result<PressSpec, SynthError> {
             "header" => p.header = Some(pair(k, v)?),
             "closing" => p.closing_mark = Some(num(k, v)?),
             "gap_units" => p.gap_units = Some(num(k, v)?),
+            "preamble" => {
+                p.preamble_bits = Some(
+                    v.parse()
+                        .map_err(|_| bad(format!("preamble={v} is not a count")))?,
+                )
+            }
+            "sync" => p.sync_word = Some(v.to_string()),
             other => return Err(bad(format!("unknown key '{other}'"))),
         }
     }
