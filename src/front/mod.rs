@@ -15,8 +15,39 @@
 //!   controlled mixer fused with a CIC (cascaded boxcar) decimator, a short Kaiser-window FIR
 //!   clean-up with a second decimation, and the magnitude.
 //!
-//! The channel stage follows in the next commit.
+//! ```
+//! use num_complex::Complex32;
+//! use ooksift::front::channel::{ChannelPlan, Channelizer};
+//! use ooksift::front::spectrum::{SpectrumSurvey, SurveyConfig};
+//!
+//! let rate_hz = 250_000.0;
+//! // A carrier 40 kHz above the centre frequency (phase reduced to one turn in f64 first).
+//! let tone: Vec<Complex32> = (0..50_000)
+//!     .map(|n| {
+//!         let turns = (40e3 * n as f64 / rate_hz).fract();
+//!         Complex32::from_polar(0.5, (std::f64::consts::TAU * turns) as f32)
+//!     })
+//!     .collect();
+//!
+//! let mut survey = SpectrumSurvey::new(rate_hz, SurveyConfig::for_rate(rate_hz))?;
+//! survey.push(&tone);
+//! let found = survey.finish();
+//! let carrier = &found.carriers[0];
+//! assert!((carrier.offset_hz - 40e3).abs() < 1e3);
+//!
+//! // Shortest mark 400 us, 2 kHz of drift: channel bandwidth and output rate follow from them.
+//! let bw_hz = ChannelPlan::bandwidth_for_mark(400e-6, 2e3)?;
+//! let min_out_hz = ChannelPlan::out_rate_for_mark(400e-6, 8.0)?;
+//! let plan = ChannelPlan::design(rate_hz, carrier.offset_hz, bw_hz, min_out_hz)?;
+//! let mut channel = Channelizer::new(&plan)?;
+//! let mut envelope = Vec::new();
+//! channel.process(&tone, &mut envelope);
+//! let settled = envelope[envelope.len() - 1];
+//! assert!((settled - 0.5).abs() < 0.01);
+//! # Ok::<(), ooksift::front::FrontError>(())
+//! ```
 
+pub mod channel;
 mod fir;
 pub mod spectrum;
 
