@@ -13,6 +13,7 @@
 pub mod budget;
 pub mod bursts;
 pub mod coding;
+pub mod compare;
 pub mod decode;
 pub mod edges;
 pub mod frames;
