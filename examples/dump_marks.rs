@@ -1,6 +1,8 @@
-//! Prints the marks the edge stage finds in a capture (debugging aid).
+//! Prints the marks the edge stage finds in a capture (debugging aid). With IQ input the
+//! strongest bursty carrier's channel is used, as `decode` does.
+use ooksift::decode::{channel_plans, survey_source, DecodeOptions};
 use ooksift::edges::{EdgeConfig, EdgeDetector};
-use ooksift::front::envelope::{EnvelopeBlock, WideEnvelope};
+use ooksift::front::envelope::{ChannelEnvelope, EnvelopeBlock, Front, WideEnvelope};
 use ooksift::source::{open, OpenOptions};
 
 fn main() -> Result<(), Box<dyn std::error::Error>> {
@@ -11,31 +13,57 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
         ..OpenOptions::default()
     };
     let mut src = open(path, &opts)?;
-    let rate = src.info().rate.hz();
-    let d = WideEnvelope::decimation_for(rate, 250_000.0);
-    let mut env = WideEnvelope::with_smoothing(d, (60e-6 * rate / d as f64).round() as usize);
-    let mut det = EdgeDetector::new(EdgeConfig::for_rate(rate / env.decim() as f64));
+    let info = src.info().clone();
+    let rate = info.rate.hz();
+    let mut front = if info.is_iq() {
+        let survey = survey_source(src.as_mut())?;
+        for c in &survey.carriers {
+            eprintln!(
+                "carrier {:+.0} Hz peak {:.1} dB snr {:.1} bw {:.0} continuous {}",
+                c.offset_hz, c.peak_db, c.snr_db, c.occupied_bw_hz, c.continuous
+            );
+        }
+        src = open(path, &opts)?;
+        let plan = channel_plans(&survey, &info, &DecodeOptions::default())
+            .into_iter()
+            .next()
+            .ok_or("no carrier")?;
+        eprintln!(
+            "channel {:+.0} Hz bw {:.0} out {:.0} Hz decim {}",
+            plan.nco_offset_hz, plan.bandwidth_hz, plan.out_rate_hz, plan.decim
+        );
+        let smooth = (60e-6 * plan.out_rate_hz).round() as usize;
+        Front::Channel(Box::new(ChannelEnvelope::new(plan, smooth)?))
+    } else {
+        let d = WideEnvelope::decimation_for(rate, 250_000.0);
+        Front::Wide(WideEnvelope::with_smoothing(
+            d,
+            (60e-6 * rate / d as f64).round() as usize,
+        ))
+    };
+    let mut det = EdgeDetector::new(EdgeConfig::for_rate(rate / front.decim()));
     let mut blk = EnvelopeBlock::default();
     let mut marks = Vec::new();
     while let Some(b) = src.next_block()? {
         blk.clear();
-        env.process(b, &mut blk);
+        front.process(b, &mut blk);
         det.process(&blk.env, &blk.lag, &mut marks);
     }
     det.finish(&mut marks);
-    let us = 1e6 / rate * env.decim() as f64;
+    let us = 1e6 / rate;
     let mut prev: Option<f64> = None;
     for m in &marks {
-        let space = prev.map(|p| (m.rise - p) * us);
+        let (r, f) = (front.position_of(m.rise), front.position_of(m.fall));
+        let space = prev.map(|p| (r - p) * us);
         println!(
             "rise {:10.1} us  mark {:8.1} us  space-before {:>10}  level {:.3} noise {:.4}",
-            m.rise * us,
-            m.width() * us,
+            r * us,
+            (f - r) * us,
             space.map_or("-".into(), |s| format!("{s:.1}")),
             m.level,
             m.noise
         );
-        prev = Some(m.fall);
+        prev = Some(f);
     }
     Ok(())
 }

@@ -16,7 +16,9 @@ use crate::bursts::{Burst, BurstConfig, BurstSplitter};
 use crate::coding;
 use crate::edges::{EdgeConfig, EdgeDetector, Mark};
 use crate::frames::{self, PressDecode};
-use crate::front::envelope::{EnvelopeBlock, WideEnvelope};
+use crate::front::channel::ChannelPlan;
+use crate::front::envelope::{ChannelEnvelope, EnvelopeBlock, Front, WideEnvelope};
+use crate::front::spectrum::{SpectrumSurvey, Survey, SurveyConfig};
 use crate::report::{CaptureSummary, CodeReport, DecodeReport, CAUTION};
 use crate::source::{self, CaptureInfo, OpenOptions, SampleSource, Samples, SourceError};
 use num_complex::Complex32;
@@ -28,6 +30,9 @@ pub enum DecodeError {
     /// The capture could not be read.
     #[error(transparent)]
     Source(#[from] SourceError),
+    /// The front end could not be set up.
+    #[error("front end: {0}")]
+    Front(String),
 }
 
 /// Options of a decode.
@@ -45,6 +50,10 @@ pub struct DecodeOptions {
     pub max_presses: usize,
     /// Line-code choices (forced code, Manchester convention).
     pub press: frames::PressOptions,
+    /// IQ files: survey the spectrum and decode each carrier in its own channel.
+    pub channels: bool,
+    /// Channels decoded at most (the strongest carriers first).
+    pub max_channels: usize,
 }
 
 impl Default for DecodeOptions {
@@ -56,6 +65,8 @@ impl Default for DecodeOptions {
             press_gap_ms: None,
             max_presses: 10_000,
             press: frames::PressOptions::default(),
+            channels: true,
+            max_channels: 8,
         }
     }
 }
@@ -63,7 +74,11 @@ impl Default for DecodeOptions {
 /// The streaming pipeline for one capture.
 pub struct Decoder {
     info: CaptureInfo,
-    env: WideEnvelope,
+    env: Front,
+    /// Rate of the lag-1 products (input rate for the whole band, channel rate otherwise).
+    lag_rate_hz: f64,
+    /// Carrier offset the envelope is centred on (None for envelope captures).
+    carrier_base_hz: Option<f64>,
     edges: EdgeDetector,
     bursts: BurstSplitter,
     env_block: EnvelopeBlock,
@@ -86,20 +101,53 @@ pub struct Decoder {
 }
 
 impl Decoder {
-    /// A pipeline tuned to the capture `info` describes.
+    /// A whole-band pipeline tuned to the capture `info` describes.
     pub fn new(info: CaptureInfo, opts: &DecodeOptions) -> Decoder {
         let rate = info.rate.hz();
         let decim = WideEnvelope::decimation_for(rate, opts.max_envelope_rate_hz);
+        let smooth = (opts.smooth_us * 1e-6 * rate / decim as f64).round() as usize;
+        let base = info.is_iq().then_some(0.0);
+        Decoder::with_front(
+            info,
+            opts,
+            Front::Wide(WideEnvelope::with_smoothing(decim, smooth)),
+            rate,
+            base,
+        )
+    }
+
+    /// A pipeline reading one carrier's channel.
+    pub fn for_channel(
+        info: CaptureInfo,
+        opts: &DecodeOptions,
+        plan: ChannelPlan,
+    ) -> Result<Decoder, crate::front::FrontError> {
+        let out = plan.out_rate_hz;
+        let base = plan.nco_offset_hz;
+        let smooth = (opts.smooth_us * 1e-6 * out).round() as usize;
+        let front = Front::Channel(Box::new(ChannelEnvelope::new(plan, smooth)?));
+        Ok(Decoder::with_front(info, opts, front, out, Some(base)))
+    }
+
+    fn with_front(
+        info: CaptureInfo,
+        opts: &DecodeOptions,
+        env: Front,
+        lag_rate_hz: f64,
+        carrier_base_hz: Option<f64>,
+    ) -> Decoder {
+        let rate = info.rate.hz();
+        let decim = env.decim();
+        let env_rate = rate / decim;
         let mut bcfg = BurstConfig::for_rate(rate);
         if let Some(ms) = opts.press_gap_ms {
             bcfg.min_gap = ms * rate / 1e3;
         }
         Decoder {
-            env: WideEnvelope::with_smoothing(
-                decim,
-                (opts.smooth_us * 1e-6 * rate / decim as f64).round() as usize,
-            ),
-            edges: EdgeDetector::new(EdgeConfig::for_rate(rate / decim as f64)),
+            env,
+            lag_rate_hz,
+            carrier_base_hz,
+            edges: EdgeDetector::new(EdgeConfig::for_rate(env_rate)),
             bursts: BurstSplitter::new(bcfg),
             env_block: EnvelopeBlock::default(),
             marks: Vec::new(),
@@ -108,9 +156,9 @@ impl Decoder {
             hist: Vec::new(),
             lag_hist: Vec::new(),
             hist_start: 0,
-            margin: ((rate / decim as f64) * 0.025) as usize + 16,
-            max_hist: ((rate / decim as f64) * 4.0) as usize + 4096,
-            env_rate: rate / decim as f64,
+            margin: (env_rate * 0.025) as usize + 16,
+            max_hist: (env_rate * 4.0) as usize + 4096,
+            env_rate,
             samples: 0,
             undecoded: 0,
             max_presses: opts.max_presses,
@@ -170,7 +218,7 @@ impl Decoder {
         let mut cleaned = burst.marks.clone();
         crate::bursts::merge_glitches(&mut cleaned, frames::GLITCH_FRACTION);
         let rough = coding::assess(&cleaned).into_iter().next()?;
-        let unit_env = rough.unit / self.env.decim() as f64;
+        let unit_env = rough.unit / self.env.decim();
         let half = ((0.3 * unit_env) / 2.0).floor() as usize;
         if half < 1 {
             return None;
@@ -202,7 +250,17 @@ impl Decoder {
         let mut marks = Vec::new();
         det.process(&smoothed, lag, &mut marks);
         det.finish(&mut marks);
-        let (floor, _) = det.floor_and_noise();
+        // The area method needs the mean idle level: take it from the quiet margin before
+        // the burst (the detector's floor follows the median).
+        let quiet = marks
+            .first()
+            .map_or(0, |m| (m.rise - (half + 3) as f64).max(0.0) as usize)
+            .min(smoothed.len());
+        let floor = if quiet >= 8 {
+            (smoothed[..quiet].iter().map(|&x| x as f64).sum::<f64>() / quiet as f64) as f32
+        } else {
+            det.floor_and_noise().0
+        };
         crate::edges::refine_edges(&smoothed, floor, &mut marks, half + 3);
         let mut marks: Vec<Mark> = crate::bursts::refine(marks, f64::INFINITY)
             .into_iter()
@@ -295,11 +353,23 @@ impl Decoder {
         self.bursts.finish(&mut self.closed);
         self.decode_closed();
         let rate = self.info.rate;
-        let base = self.info.is_iq().then_some(0.0);
-        let codes = frames::group(std::mem::take(&mut self.presses))
+        let (base, lag_rate) = (self.carrier_base_hz, self.lag_rate_hz);
+        let mut codes: Vec<CodeReport> = frames::group(std::mem::take(&mut self.presses))
             .iter()
-            .map(|g| CodeReport::from_group(g, rate, base))
+            .map(|g| CodeReport::from_group(g, rate, base, lag_rate))
             .collect();
+        if let Front::Channel(c) = &self.env {
+            // A code whose carrier lies outside this channel's passband leaked in from a
+            // stronger neighbour (keying sidebands look like carriers of their own): it belongs
+            // to the neighbour's channel, not this one.
+            let (centre, half) = (c.plan().nco_offset_hz, c.plan().bandwidth_hz / 2.0);
+            let before = codes.len();
+            codes.retain(|k| {
+                k.carrier_offset_hz
+                    .is_none_or(|f| (f - centre).abs() <= half)
+            });
+            self.undecoded += before - codes.len();
+        }
         DecodeReport {
             generator: format!("ooksift {}", env!("CARGO_PKG_VERSION")),
             capture: CaptureSummary::new(&self.info, self.samples),
@@ -360,7 +430,117 @@ pub fn decode_source(
 }
 
 /// Opens and decodes the capture at `path` (`-` for standard input).
+///
+/// IQ files are read twice: a spectrum survey finds the bursty carriers, then every carrier is
+/// decoded in a channel of its own, all from one more pass over the file. Standard input, and
+/// IQ files in which the survey finds no carrier, are decoded from the whole band in one pass.
 pub fn decode_path(path: &str, opts: &DecodeOptions) -> Result<DecodeReport, DecodeError> {
     let mut src = source::open(path, &opts.open)?;
-    decode_source(src.as_mut(), opts)
+    if !(src.info().is_iq() && path != "-" && opts.channels) {
+        return decode_source(src.as_mut(), opts);
+    }
+    let info = src.info().clone();
+    let survey = survey_source(src.as_mut())?;
+    let plans = channel_plans(&survey, &info, opts);
+    let mut src = source::open(path, &opts.open)?;
+    if plans.is_empty() {
+        let mut r = decode_source(src.as_mut(), opts)?;
+        r.notes.push(
+            "the spectrum survey found no bursty carrier; decoded from the whole band".into(),
+        );
+        return Ok(r);
+    }
+    let mut decoders: Vec<Decoder> = plans
+        .into_iter()
+        .filter_map(|p| Decoder::for_channel(info.clone(), opts, p).ok())
+        .collect();
+    while let Some(block) = src.next_block()? {
+        for d in &mut decoders {
+            d.push(block);
+        }
+    }
+    let reports: Vec<DecodeReport> = decoders.into_iter().map(Decoder::finish).collect();
+    Ok(merge_reports(reports))
+}
+
+/// Runs the spectrum survey over every block of an IQ source.
+pub fn survey_source(src: &mut dyn SampleSource) -> Result<Survey, DecodeError> {
+    let rate = src.info().rate.hz();
+    let mut survey = SpectrumSurvey::new(rate, SurveyConfig::for_rate(rate))
+        .map_err(|e| DecodeError::Front(e.to_string()))?;
+    while let Some(block) = src.next_block()? {
+        if let Samples::Iq(iq) = block {
+            survey.push(iq);
+        }
+    }
+    Ok(survey.finish())
+}
+
+/// One channel per bursty carrier, strongest first: bandwidth from the carrier's occupied bandwidth, at least
+/// what a 100 µs mark needs with 5 kHz of drift, and at most what a 60 µs mark needs; output
+/// rate at least eight samples per 100 µs mark.
+pub fn channel_plans(
+    survey: &Survey,
+    info: &CaptureInfo,
+    opts: &DecodeOptions,
+) -> Vec<ChannelPlan> {
+    let rate = info.rate.hz();
+    let widest = ChannelPlan::bandwidth_for_mark(60e-6, 5e3).unwrap_or(55e3);
+    let narrowest = ChannelPlan::bandwidth_for_mark(100e-6, 5e3).unwrap_or(35e3);
+    let mut bursty: Vec<_> = survey.carriers.iter().filter(|c| !c.continuous).collect();
+    bursty.sort_by(|a, b| b.peak_db.total_cmp(&a.peak_db));
+    bursty
+        .into_iter()
+        .take(opts.max_channels)
+        .filter_map(|c| {
+            let bw = (c.occupied_bw_hz * 1.2 + 10e3)
+                .clamp(narrowest, widest)
+                .min(rate / 2.0);
+            let out = (8.0 / 100e-6_f64).max(2.0 * bw).min(rate);
+            ChannelPlan::design(rate, c.offset_hz, bw, out).ok()
+        })
+        .collect()
+}
+
+/// Merges the reports of several channels of one capture: codes ordered by first appearance;
+/// a code heard in two channels (a carrier's sideband taken for a carrier) is kept once, from
+/// the channel with more frames.
+pub fn merge_reports(mut reports: Vec<DecodeReport>) -> DecodeReport {
+    let mut out = reports.remove(0);
+    for r in reports {
+        out.undecoded_bursts += r.undecoded_bursts;
+        for n in r.notes {
+            if !out.notes.contains(&n) {
+                out.notes.push(n);
+            }
+        }
+        for c in r.codes {
+            match out.codes.iter_mut().find(|k| k.key_id == c.key_id) {
+                Some(k) if c.frames > k.frames => *k = c,
+                Some(_) => {}
+                None => out.codes.push(c),
+            }
+        }
+    }
+    // A weak code heard at the same time as a code 10 dB stronger in another channel is that
+    // code's splatter, unless it was heard on its own too.
+    let overlaps = |a: &CodeReport, b: &CodeReport| {
+        a.timeline.iter().all(|p| {
+            b.timeline
+                .iter()
+                .any(|q| p.start_s < q.end_s && q.start_s < p.end_s)
+        })
+    };
+    let all = out.codes.clone();
+    out.codes.retain(|c| {
+        !all.iter().any(|k| {
+            k.key_id != c.key_id
+                && k.snr_db >= c.snr_db + 10.0
+                && k.carrier_offset_hz != c.carrier_offset_hz
+                && overlaps(c, k)
+        })
+    });
+    out.codes
+        .sort_by(|a, b| a.first_start_s.total_cmp(&b.first_start_s));
+    out
 }

@@ -364,7 +364,8 @@ impl EdgeDetector {
     }
 }
 
-/// Re-places the edges of `marks` (positions in `env` sample indices) by the area method:
+/// Re-places the edges of `marks` (positions in `env` sample indices) by the area method
+/// (`floor` must be the *mean* idle level):
 /// around each edge, the sum of the envelope normalised between `floor` and the mark's level
 /// equals the number of samples on the mark's side of the edge. Zero-mean noise adds no bias
 /// (threshold crossings of a noisy ramp are biased outward), and any symmetric smoothing up to
@@ -373,9 +374,37 @@ impl EdgeDetector {
 pub fn refine_edges(env: &[f32], floor: f32, marks: &mut [Mark], reach: usize) {
     let n = env.len() as f64;
     let old: Vec<(f64, f64)> = marks.iter().map(|m| (m.rise, m.fall)).collect();
+    // All marks of a burst share one amplitude, but only long marks show it: a short mark
+    // rounded by filters never reaches its plateau. Take the level from the interiors of the
+    // longest marks.
+    let longest = old.iter().map(|(r, f)| f - r).fold(0.0, f64::max);
+    let (mut sum, mut count) = (0.0f64, 0usize);
+    for &(r, f) in old.iter().filter(|(r, f)| f - r >= 0.75 * longest) {
+        let lo = (r + reach as f64).ceil().max(0.0) as usize;
+        let hi = (f - reach as f64).floor().min(n - 1.0);
+        if hi >= lo as f64 {
+            for &x in &env[lo..=hi as usize] {
+                sum += x as f64;
+                count += 1;
+            }
+        }
+    }
+    let shared_level = (count > 0).then(|| (sum / count as f64) as f32 - floor);
     for (i, m) in marks.iter_mut().enumerate() {
         let (r, f) = old[i];
-        let level = m.level;
+        // The level that normalises the area is the mean of the mark's interior (its median,
+        // which the detector reports, differs from the mean for the skewed noise of an
+        // envelope, and the area method needs means).
+        let lo = (r + reach as f64).ceil().max(0.0) as usize;
+        let hi = ((f - reach as f64).floor().min(n - 1.0)).max(0.0) as usize;
+        let level = match shared_level {
+            Some(l) => l,
+            None if hi > lo => {
+                (env[lo..=hi].iter().map(|&x| x as f64).sum::<f64>() / (hi - lo + 1) as f64) as f32
+                    - floor
+            }
+            None => m.level,
+        };
         if level <= 0.0 {
             continue;
         }

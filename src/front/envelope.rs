@@ -6,6 +6,8 @@
 //! product `Σ z[n]·conj(z[n-1])` of the IQ samples it integrated, from which the edge stage
 //! measures the carrier offset of every mark (phase advance per sample).
 
+use crate::front::channel::{ChannelPlan, Channelizer};
+use crate::front::FrontError;
 use crate::source::Samples;
 use num_complex::{Complex32, Complex64};
 
@@ -26,6 +28,157 @@ impl EnvelopeBlock {
     }
 }
 
+/// A moving average of `len` envelope samples (and of their lag products), delaying the
+/// envelope by `(len - 1) / 2` samples.
+#[derive(Debug, Clone)]
+pub struct Smoother {
+    ring: Vec<f32>,
+    pos: usize,
+    sum: f64,
+    lag_ring: Vec<Complex32>,
+    lag_sum: Complex64,
+}
+
+impl Smoother {
+    /// An average over `len` samples (1 = none).
+    pub fn new(len: usize) -> Smoother {
+        let len = len.max(1);
+        Smoother {
+            ring: vec![0.0; len],
+            pos: 0,
+            sum: 0.0,
+            lag_ring: vec![Complex32::new(0.0, 0.0); len],
+            lag_sum: Complex64::new(0.0, 0.0),
+        }
+    }
+
+    /// Samples averaged.
+    pub fn len(&self) -> usize {
+        self.ring.len()
+    }
+
+    /// Always false: an average holds at least one sample.
+    pub fn is_empty(&self) -> bool {
+        false
+    }
+
+    /// The delay the average adds, in samples.
+    pub fn delay(&self) -> f64 {
+        (self.ring.len() as f64 - 1.0) / 2.0
+    }
+
+    /// Adds one sample (and its lag product, for IQ) and appends the averages to `out`.
+    pub fn push(&mut self, v: f32, lag: Option<Complex32>, out: &mut EnvelopeBlock) {
+        let old = std::mem::replace(&mut self.ring[self.pos], v);
+        self.sum += v as f64 - old as f64;
+        out.env.push((self.sum / self.ring.len() as f64) as f32);
+        if let Some(l) = lag {
+            let old = std::mem::replace(&mut self.lag_ring[self.pos], l);
+            self.lag_sum +=
+                Complex64::new(l.re as f64 - old.re as f64, l.im as f64 - old.im as f64);
+            out.lag.push(Complex32::new(
+                self.lag_sum.re as f32,
+                self.lag_sum.im as f32,
+            ));
+        }
+        self.pos = (self.pos + 1) % self.ring.len();
+    }
+}
+
+/// One carrier's channel as an envelope: the channelizer's complex output, its magnitude and
+/// lag-1 products (for the residual carrier offset), then the same moving average as the
+/// whole-band path.
+pub struct ChannelEnvelope {
+    ch: Channelizer,
+    plan: ChannelPlan,
+    iq: Vec<Complex32>,
+    prev: Complex32,
+    smoother: Smoother,
+}
+
+impl ChannelEnvelope {
+    /// A channel built from `plan`, averaging `smooth` output samples.
+    pub fn new(plan: ChannelPlan, smooth: usize) -> Result<ChannelEnvelope, FrontError> {
+        Ok(ChannelEnvelope {
+            ch: Channelizer::new(&plan)?,
+            plan,
+            iq: Vec::new(),
+            prev: Complex32::new(0.0, 0.0),
+            smoother: Smoother::new(smooth),
+        })
+    }
+
+    /// The channel's design.
+    pub fn plan(&self) -> &ChannelPlan {
+        &self.plan
+    }
+
+    /// Capture position (input samples) of envelope sample `k`.
+    pub fn position_of(&self, k: f64) -> f64 {
+        let q = k - self.smoother.delay();
+        (q + 1.0) * self.plan.decim as f64 - 1.0 - self.plan.delay_samples
+    }
+
+    /// Envelope index at capture position `pos` (inverse of [`ChannelEnvelope::position_of`]).
+    pub fn index_of(&self, pos: f64) -> f64 {
+        (pos + 1.0 + self.plan.delay_samples) / self.plan.decim as f64 - 1.0 + self.smoother.delay()
+    }
+
+    /// Appends the envelope of an IQ block to `out`.
+    pub fn process(&mut self, block: &[Complex32], out: &mut EnvelopeBlock) {
+        self.iq.clear();
+        self.ch.process_iq(block, &mut self.iq);
+        for &z in &self.iq {
+            let l = z * self.prev.conj();
+            self.prev = z;
+            self.smoother.push(z.norm(), Some(l), out);
+        }
+    }
+}
+
+/// The envelope stage of one decoding chain.
+pub enum Front {
+    /// The whole band (or a recorded envelope).
+    Wide(WideEnvelope),
+    /// One carrier's channel.
+    Channel(Box<ChannelEnvelope>),
+}
+
+impl Front {
+    /// Appends the envelope of `block` to `out` (a channel ignores envelope input).
+    pub fn process(&mut self, block: Samples<'_>, out: &mut EnvelopeBlock) {
+        match (self, block) {
+            (Front::Wide(w), b) => w.process(b, out),
+            (Front::Channel(c), Samples::Iq(iq)) => c.process(iq, out),
+            (Front::Channel(_), Samples::Envelope(_)) => {}
+        }
+    }
+
+    /// Capture position of envelope sample `k`.
+    pub fn position_of(&self, k: f64) -> f64 {
+        match self {
+            Front::Wide(w) => w.position_of(k),
+            Front::Channel(c) => c.position_of(k),
+        }
+    }
+
+    /// Envelope index at capture position `pos`.
+    pub fn index_of(&self, pos: f64) -> f64 {
+        match self {
+            Front::Wide(w) => w.index_of(pos),
+            Front::Channel(c) => c.index_of(pos),
+        }
+    }
+
+    /// Capture samples per envelope sample.
+    pub fn decim(&self) -> f64 {
+        match self {
+            Front::Wide(w) => w.decim() as f64,
+            Front::Channel(c) => c.plan().decim as f64,
+        }
+    }
+}
+
 /// Integrate-and-dump envelope detector: `decim` input samples per output sample.
 ///
 /// Output sample `k` covers input samples `[k·decim, (k+1)·decim)`, so its centre sits at input
@@ -33,13 +186,7 @@ impl EnvelopeBlock {
 #[derive(Debug, Clone)]
 pub struct WideEnvelope {
     decim: usize,
-    /// Post-detection moving average: length and ring of recent dumps.
-    smooth: usize,
-    ring: Vec<f32>,
-    ring_pos: usize,
-    ring_sum: f64,
-    lag_ring: Vec<Complex32>,
-    lag_sum: Complex64,
+    smoother: Smoother,
     acc: f64,
     acc_lag: Complex64,
     n: usize,
@@ -59,15 +206,9 @@ impl WideEnvelope {
 
     /// A detector dumping every `decim` input samples, then averaging `smooth` dumps.
     pub fn with_smoothing(decim: usize, smooth: usize) -> WideEnvelope {
-        let smooth = smooth.max(1);
         WideEnvelope {
             decim: decim.max(1),
-            smooth,
-            ring: vec![0.0; smooth],
-            ring_pos: 0,
-            ring_sum: 0.0,
-            lag_ring: vec![Complex32::new(0.0, 0.0); smooth],
-            lag_sum: Complex64::new(0.0, 0.0),
+            smoother: Smoother::new(smooth),
             acc: 0.0,
             acc_lag: Complex64::new(0.0, 0.0),
             n: 0,
@@ -82,36 +223,18 @@ impl WideEnvelope {
 
     /// Capture position (in input samples) of output sample `k`.
     pub fn position_of(&self, k: f64) -> f64 {
-        let centre = k - (self.smooth as f64 - 1.0) / 2.0;
+        let centre = k - self.smoother.delay();
         centre * self.decim as f64 + (self.decim as f64 - 1.0) / 2.0
     }
 
     /// Output-sample index at capture position `pos` (inverse of [`WideEnvelope::position_of`]).
     pub fn index_of(&self, pos: f64) -> f64 {
-        (pos - (self.decim as f64 - 1.0) / 2.0) / self.decim as f64
-            + (self.smooth as f64 - 1.0) / 2.0
+        (pos - (self.decim as f64 - 1.0) / 2.0) / self.decim as f64 + self.smoother.delay()
     }
 
     /// Forgets all state, as at the start of a capture.
     pub fn reset(&mut self) {
-        *self = WideEnvelope::with_smoothing(self.decim, self.smooth);
-    }
-
-    fn emit(&mut self, v: f32, l: Complex32, out: &mut EnvelopeBlock, iq: bool) {
-        let old = std::mem::replace(&mut self.ring[self.ring_pos], v);
-        self.ring_sum += v as f64 - old as f64;
-        let inv = 1.0 / self.smooth as f64;
-        out.env.push((self.ring_sum * inv) as f32);
-        if iq {
-            let old = std::mem::replace(&mut self.lag_ring[self.ring_pos], l);
-            self.lag_sum +=
-                Complex64::new(l.re as f64 - old.re as f64, l.im as f64 - old.im as f64);
-            out.lag.push(Complex32::new(
-                self.lag_sum.re as f32,
-                self.lag_sum.im as f32,
-            ));
-        }
-        self.ring_pos = (self.ring_pos + 1) % self.smooth;
+        *self = WideEnvelope::with_smoothing(self.decim, self.smoother.len());
     }
 
     /// Appends the envelope of `block` to `out`.
@@ -128,7 +251,7 @@ impl WideEnvelope {
                     self.n += 1;
                     if self.n == d {
                         let l = Complex32::new(self.acc_lag.re as f32, self.acc_lag.im as f32);
-                        self.emit((self.acc * scale) as f32, l, out, true);
+                        self.smoother.push((self.acc * scale) as f32, Some(l), out);
                         self.acc = 0.0;
                         self.acc_lag = Complex64::new(0.0, 0.0);
                         self.n = 0;
@@ -140,12 +263,7 @@ impl WideEnvelope {
                     self.acc += x as f64;
                     self.n += 1;
                     if self.n == d {
-                        self.emit(
-                            (self.acc * scale) as f32,
-                            Complex32::new(0.0, 0.0),
-                            out,
-                            false,
-                        );
+                        self.smoother.push((self.acc * scale) as f32, None, out);
                         self.acc = 0.0;
                         self.n = 0;
                     }

@@ -51,8 +51,8 @@
 //! # Ok::<(), ooksift::front::FrontError>(())
 //! ```
 
-pub mod envelope;
 pub mod channel;
+pub mod envelope;
 mod fir;
 pub mod spectrum;
 

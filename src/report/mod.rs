@@ -170,9 +170,15 @@ pub struct CodeReport {
 }
 
 impl CodeReport {
-    /// Builds a code's report from its presses; `lag_rate` is the rate of the lag-1 products
-    /// (the IQ sample rate) or `None` for envelope input.
-    pub fn from_group(g: &CodeGroup, rate: Rate, carrier_base_hz: Option<f64>) -> CodeReport {
+    /// Builds a code's report from its presses. The carrier offset is `carrier_base_hz` (the
+    /// channel's centre; `None` for envelope input) plus the residual measured from the
+    /// lag-1 products, taken at `lag_rate_hz`.
+    pub fn from_group(
+        g: &CodeGroup,
+        rate: Rate,
+        carrier_base_hz: Option<f64>,
+        lag_rate_hz: f64,
+    ) -> CodeReport {
         let ms = |x: f64| round_to(rate.to_ms(x), 4);
         let us = |x: f64| round_to(rate.to_us(x), 2);
         let ps = &g.presses;
@@ -196,7 +202,7 @@ impl CodeReport {
         let lag: num_complex::Complex64 = ps.iter().map(|p| p.lag).sum();
         let carrier_offset_hz = carrier_base_hz.map(|base| {
             let residual = if lag.norm() > 0.0 {
-                lag.arg() * rate.hz() / std::f64::consts::TAU
+                lag.arg() * lag_rate_hz / std::f64::consts::TAU
             } else {
                 0.0
             };
