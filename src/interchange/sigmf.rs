@@ -212,10 +212,34 @@ pub fn write_annotations(r: &DecodeReport, force: bool) -> Result<Annotated, Int
     })
 }
 
+/// Pretty JSON with the top-level objects in SigMF's order (`global`, `captures`,
+/// `annotations`, then any others), for people who read the file.
+fn sigmf_text(doc: &Value) -> Result<String, InterchangeError> {
+    let pretty = |v: &Value| {
+        serde_json::to_string_pretty(v)
+            .map(|t| t.replace('\n', "\n  "))
+            .map_err(|e| InterchangeError::Io(std::io::Error::other(e)))
+    };
+    let Some(obj) = doc.as_object() else {
+        return pretty(doc);
+    };
+    let order = ["global", "captures", "annotations"];
+    let mut keys: Vec<&String> = obj.keys().filter(|k| order.contains(&k.as_str())).collect();
+    keys.sort_by_key(|k| order.iter().position(|o| o == k));
+    keys.extend(obj.keys().filter(|k| !order.contains(&k.as_str())));
+    let mut parts = Vec::with_capacity(keys.len());
+    for k in keys {
+        parts.push(format!(
+            "  {}: {}",
+            Value::from(k.as_str()),
+            pretty(&obj[k])?
+        ));
+    }
+    Ok(format!("{{\n{}\n}}\n", parts.join(",\n")))
+}
+
 fn write_json(path: &Path, doc: &Value, force: bool) -> Result<(), InterchangeError> {
-    let mut text = serde_json::to_string_pretty(doc)
-        .map_err(|e| InterchangeError::Io(std::io::Error::other(e)))?;
-    text.push('\n');
+    let text = sigmf_text(doc)?;
     write_atomic(path, text.as_bytes(), force)?;
     Ok(())
 }
@@ -469,6 +493,20 @@ mod tests {
             label("ppm1024-0123456789abcdef").chars().count(),
             MAX_LABEL_CHARS
         );
+    }
+
+    #[test]
+    fn top_level_objects_come_in_sigmf_order() {
+        let doc = json!({"annotations": [{"core:sample_start": 1}], "zz": 1,
+                         "captures": [], "global": {"core:version": "1.2.0"}});
+        let text = sigmf_text(&doc).expect("text");
+        let at = |k: &str| text.find(k).expect(k);
+        assert!(
+            at("\"global\"") < at("\"captures\"") && at("\"captures\"") < at("\"annotations\"")
+        );
+        assert!(at("\"annotations\"") < at("\"zz\""));
+        let back: Value = serde_json::from_str(&text).expect("still JSON");
+        assert_eq!(back, doc);
     }
 
     #[test]
