@@ -374,11 +374,15 @@ fn write_interchange(args: &DecodeArgs, reports: &[DecodeReport]) -> i32 {
     status
 }
 
-/// Refuses an existing `--csv` file before any work is done (unless `--force`).
+/// Refuses `--csv -` and an existing `--csv` file (unless `--force`) before any work is done.
 fn refuse_existing_outputs(args: &DecodeArgs) -> Option<i32> {
-    let path = args.csv.as_ref().filter(|p| !args.force && p.exists())?;
-    Some(fail(
-        &path.display().to_string(),
-        "exists; add --force to replace it",
-    ))
+    let path = args.csv.as_ref()?;
+    let name = path.display().to_string();
+    if path.as_os_str() == "-" {
+        return Some(fail(
+            &name,
+            "--csv needs a file name; standard output holds the report",
+        ));
+    }
+    (!args.force && path.exists()).then(|| fail(&name, "exists; add --force to replace it"))
 }

@@ -162,6 +162,11 @@ pub fn write_csv_file(
     path: &Path,
     force: bool,
 ) -> Result<(), InterchangeError> {
+    if path.as_os_str() == "-" {
+        return Err(InterchangeError::Unsupported(
+            "the CSV goes to a file; `-` (standard output) would mix it with the report".into(),
+        ));
+    }
     let mut f = AtomicFile::create(path, force)?;
     write_csv(reports, &mut f)?;
     f.commit()?;

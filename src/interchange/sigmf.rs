@@ -447,7 +447,7 @@ pub fn wav_layout(path: &Path) -> Result<WavLayout, InterchangeError> {
             let data_len = size.min(file_len.saturating_sub(pos));
             return Ok(WavLayout {
                 header_bytes: pos,
-                trailing_bytes: file_len - pos - data_len,
+                trailing_bytes: file_len.saturating_sub(pos + data_len),
                 datatype,
             });
         }
@@ -507,6 +507,49 @@ mod tests {
         assert!(at("\"annotations\"") < at("\"zz\""));
         let back: Value = serde_json::from_str(&text).expect("still JSON");
         assert_eq!(back, doc);
+    }
+
+    fn chunk(id: &[u8; 4], body: &[u8]) -> Vec<u8> {
+        let mut c = id.to_vec();
+        c.extend_from_slice(&(body.len() as u32).to_le_bytes());
+        c.extend_from_slice(body);
+        if body.len() % 2 == 1 {
+            c.push(0);
+        }
+        c
+    }
+
+    #[test]
+    fn wav_layout_skips_other_chunks_and_counts_trailing_bytes() {
+        // fmt: PCM (tag 1), 2 channels, 48 kHz, 16 bits (RIFF WAVE layout, common practice).
+        let mut fmt = Vec::new();
+        for v in [1u16, 2] {
+            fmt.extend_from_slice(&v.to_le_bytes());
+        }
+        fmt.extend_from_slice(&48_000u32.to_le_bytes());
+        fmt.extend_from_slice(&(48_000u32 * 4).to_le_bytes());
+        fmt.extend_from_slice(&4u16.to_le_bytes());
+        fmt.extend_from_slice(&16u16.to_le_bytes());
+        let mut body = b"WAVE".to_vec();
+        body.extend(chunk(b"fmt ", &fmt));
+        body.extend(chunk(b"LIST", b"odd"));
+        body.extend(chunk(b"data", &[0u8; 40]));
+        body.extend(chunk(b"note", &[1u8; 6]));
+        let mut file = b"RIFF".to_vec();
+        file.extend_from_slice(&(body.len() as u32).to_le_bytes());
+        file.extend(body);
+        let dir = tempfile::tempdir().expect("tempdir");
+        let p = dir.path().join("x.wav");
+        std::fs::write(&p, &file).expect("write");
+        let w = wav_layout(&p).expect("layout");
+        // 12 (RIFF) + 8 + 16 (fmt) + 8 + 4 (LIST, padded) + 8 (data header) = 56.
+        assert_eq!(w.header_bytes, 56);
+        assert_eq!(w.trailing_bytes, 14);
+        assert_eq!(w.datatype, "ci16_le");
+        assert_eq!(file.len() as u64, 56 + 40 + 14);
+        // Not a WAV: refused, no panic.
+        std::fs::write(&p, b"RIFX").expect("write");
+        assert!(wav_layout(&p).is_err());
     }
 
     #[test]

@@ -690,7 +690,7 @@ fn widths_in_window(d: &PlotData) -> (Vec<f64>, Vec<f64>, Vec<f64>) {
                     for c in m.chunks(2).filter(|c| c.len() == 2) {
                         marks.push(c[1] - c[0]);
                     }
-                    for w in m[1..].chunks(2).filter(|c| c.len() == 2) {
+                    for w in m.get(1..).unwrap_or(&[]).chunks(2).filter(|c| c.len() == 2) {
                         spaces.push(w[1] - w[0]);
                     }
                     if let Some(pe) = prev_end {
