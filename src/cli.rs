@@ -25,6 +25,8 @@ enum Command {
     Synth(SynthArgs),
     /// Airtime, duty-cycle rules and the energy budget of each code of a capture or report.
     Budget(BudgetArgs),
+    /// Draw a capture as SVG: envelope with marks, frames and bits; width histograms.
+    Plot(PlotArgs),
 }
 
 /// How to read a capture (shared by every command that takes one).
@@ -73,6 +75,16 @@ struct DecodeArgs {
     /// thomas (the opposite).
     #[arg(long, value_name = "CONVENTION", default_value = "ieee")]
     manchester: String,
+    /// Also write one CSV row per decoded frame to FILE (header in docs/interchange.md).
+    #[arg(long, value_name = "FILE")]
+    csv: Option<PathBuf>,
+    /// Also write SigMF annotations (one per frame) in a .sigmf-meta beside each capture;
+    /// the capture itself is never written (docs/interchange.md).
+    #[arg(long)]
+    sigmf_annotate: bool,
+    /// Replace existing --csv and --sigmf-annotate outputs.
+    #[arg(long)]
+    force: bool,
 }
 
 #[derive(Args, Debug)]
@@ -422,6 +434,9 @@ fn decode(args: DecodeArgs) -> i32 {
         "thomas" => true,
         other => return fail("--manchester", format!("'{other}': use ieee or thomas")),
     };
+    if let Some(code) = refuse_existing_outputs(&args) {
+        return code;
+    }
     let opts = DecodeOptions {
         open: args.input.open_options(),
         press_gap_ms: args.press_gap_ms,
@@ -449,7 +464,7 @@ fn decode(args: DecodeArgs) -> i32 {
             emit(&render_text(r));
         }
     }
-    status
+    write_interchange(&args, &reports).max(status)
 }
 
 fn synth_cmd(a: SynthArgs) -> i32 {
@@ -556,5 +571,105 @@ pub fn run() -> i32 {
         Command::Decode(a) => decode(a),
         Command::Synth(a) => synth_cmd(a),
         Command::Budget(a) => budget_cmd(a),
+        Command::Plot(a) => plot_cmd(a),
     }
+}
+
+#[derive(Args, Debug)]
+struct PlotArgs {
+    /// Capture file, or - for standard input.
+    #[arg(value_name = "CAPTURE")]
+    capture: String,
+    #[command(flatten)]
+    input: InputArgs,
+    /// The SVG file to write.
+    #[arg(long, value_name = "FILE.svg")]
+    out: PathBuf,
+    /// Start of the time window, seconds from the capture's start.
+    #[arg(long, value_name = "S")]
+    from: Option<f64>,
+    /// End of the time window, seconds from the capture's start.
+    #[arg(long, value_name = "S")]
+    to: Option<f64>,
+    /// Silence in ms that always separates two presses (default 80).
+    #[arg(long, value_name = "MS")]
+    press_gap_ms: Option<f64>,
+    /// Replace an existing output.
+    #[arg(long)]
+    force: bool,
+}
+
+fn plot_cmd(a: PlotArgs) -> i32 {
+    use ooksift::plot::{collect_path, write_svg, PlotOptions};
+    let out_name = a.out.display().to_string();
+    if !a.force && a.out.exists() {
+        return fail(&out_name, "exists; add --force to replace it");
+    }
+    let opts = PlotOptions {
+        decode: DecodeOptions {
+            open: a.input.open_options(),
+            press_gap_ms: a.press_gap_ms,
+            ..DecodeOptions::default()
+        },
+        from_s: a.from,
+        to_s: a.to,
+        ..PlotOptions::default()
+    };
+    let data = match collect_path(&a.capture, &opts) {
+        Ok(d) => d,
+        Err(e) => return fail(&a.capture, e),
+    };
+    match write_svg(&data, &a.out, a.force) {
+        Ok(()) => {
+            eprintln!(
+                "ooksift: wrote {} ({} code(s), {:.3}–{:.3} s)",
+                out_name,
+                data.report.codes.len(),
+                data.from_s,
+                data.to_s
+            );
+            0
+        }
+        Err(e) => fail(&out_name, e),
+    }
+}
+
+/// Writes the `--csv` and `--sigmf-annotate` outputs of `decode`; returns the exit status.
+fn write_interchange(args: &DecodeArgs, reports: &[DecodeReport]) -> i32 {
+    use ooksift::interchange::{csv, sigmf};
+    let mut status = 0;
+    if let Some(path) = &args.csv {
+        if let Err(e) = csv::write_csv_file(reports, path, args.force) {
+            status = fail(&path.display().to_string(), e);
+        }
+    }
+    if args.sigmf_annotate {
+        for r in reports {
+            match sigmf::write_annotations(r, args.force) {
+                Ok(a) => eprintln!(
+                    "ooksift: wrote {} ({} annotation(s){})",
+                    a.meta.display(),
+                    a.annotations,
+                    a.data_link
+                        .map(|l| format!(", dataset linked as {}", l.display()))
+                        .unwrap_or_default()
+                ),
+                Err(e) => status = fail(&r.capture.path, e),
+            }
+        }
+    }
+    status
+}
+
+/// Refuses `--csv -` and an existing `--csv` file (unless `--force`) before any work is done.
+fn refuse_existing_outputs(args: &DecodeArgs) -> Option<i32> {
+    let path = args.csv.as_ref()?;
+    let name = path.display().to_string();
+    if path.as_os_str() == "-" {
+        return Some(fail(
+            &name,
+            "--csv needs a file name; standard output holds the report",
+        ));
+    }
+    (!args.force && path.exists()).then(|| fail(&name, "exists; add --force to replace it"))
 }
