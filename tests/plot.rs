@@ -108,7 +108,7 @@ fn whole_capture_has_one_box_per_frame_and_labelled_axes() {
     assert!(with_class(&doc, "spectrum-view").is_empty());
     // Every mark of the capture is shaded somewhere (merged spans, so at most one per mark).
     let shaded = with_class(&doc, "mark").len();
-    assert!(shaded >= 7 && shaded <= 200, "{shaded} shaded spans");
+    assert!((7..=200).contains(&shaded), "{shaded} shaded spans");
     // One unit line per code in each histogram, at the truth's units.
     let units = texts(&with_class(&doc, "unit-label"));
     assert_eq!(
