@@ -25,6 +25,11 @@ enum Command {
     Synth(SynthArgs),
     /// Airtime, duty-cycle rules and the energy budget of each code of a capture or report.
     Budget(BudgetArgs),
+    /// Codes of several captures or saved reports side by side: field map, fixed or rolling,
+    /// distances, checksum candidates.
+    Compare(CompareArgs),
+    /// Carriers in an IQ capture: offset, frequency, peak and average level, bandwidth.
+    Spectrum(SpectrumArgs),
     /// Draw a capture as SVG: envelope with marks, frames and bits; width histograms.
     Plot(PlotArgs),
 }
@@ -132,11 +137,14 @@ struct SynthArgs {
     #[arg(long, value_name = "US")]
     stretch_us: Option<f64>,
     /// IQ outputs: DC offset as I,Q (full scale 1).
-    #[arg(long, value_name = "I,Q", value_delimiter = ',', num_args = 2)]
-    dc: Option<Vec<f64>>,
+    #[arg(long, value_name = "I,Q", allow_hyphen_values = true)]
+    dc: Option<String>,
     /// Envelope outputs: write the envelope upside down.
     #[arg(long)]
     invert: bool,
+    /// IQ outputs: add a continuous carrier OFFSET_HZ,AMPLITUDE (repeatable).
+    #[arg(long, value_name = "HZ,A", allow_hyphen_values = true)]
+    tone: Vec<String>,
     /// Silence before the first press, ms.
     #[arg(long, value_name = "MS")]
     lead_ms: Option<f64>,
@@ -230,6 +238,221 @@ struct BudgetArgs {
     /// Replace an existing CSV file.
     #[arg(long)]
     force: bool,
+}
+
+#[derive(Args, Debug)]
+struct CompareArgs {
+    /// Captures, or reports saved by `decode --json` (.json files).
+    #[arg(value_name = "CAPTURE|REPORT", required = true)]
+    inputs: Vec<String>,
+    #[command(flatten)]
+    input_args: InputArgs,
+    /// Name the transmitter an input belongs to: NAME=INPUT (repeatable). Unlabelled
+    /// inputs' codes are grouped into transmitters by Hamming distance.
+    #[arg(long = "label", value_name = "NAME=INPUT")]
+    labels: Vec<String>,
+    /// Print the JSON report (schemas/compare.schema.json) instead of text.
+    #[arg(long)]
+    json: bool,
+    /// Also write one CSV row per code to FILE.
+    #[arg(long, value_name = "FILE")]
+    csv: Option<PathBuf>,
+    /// Replace an existing CSV file.
+    #[arg(long)]
+    force: bool,
+}
+
+fn compare_cmd(a: CompareArgs) -> i32 {
+    use ooksift::compare::{CodeEntry, CompareOptions};
+    let mut labels: Vec<(String, String)> = Vec::new();
+    for l in &a.labels {
+        match l.split_once('=') {
+            Some((name, input)) if !name.is_empty() && a.inputs.iter().any(|i| i == input) => {
+                labels.push((input.to_string(), name.to_string()))
+            }
+            Some((_, input)) if !a.inputs.iter().any(|i| i == input) => {
+                return fail(input, "--label names an input that is not compared")
+            }
+            _ => return fail(l, "--label takes NAME=INPUT"),
+        }
+    }
+    let mut entries = Vec::new();
+    for input in &a.inputs {
+        let report = match load_report(input, &a.input_args) {
+            Ok(r) => r,
+            Err(e) => return fail(input, e),
+        };
+        let label = labels
+            .iter()
+            .find(|(i, _)| i == input)
+            .map(|(_, n)| n.clone());
+        for c in &report.codes {
+            entries.push(CodeEntry {
+                source: input.clone(),
+                label: label.clone(),
+                key_id: c.key_id.clone(),
+                line_code: c.line_code.clone(),
+                bits: c.bits.clone(),
+                presses: c.presses as u32,
+                first_start_s: c.first_start_s,
+            });
+        }
+    }
+    let subject = a.inputs.join(", ");
+    let report = match ooksift::compare::compare(&entries, &CompareOptions::default()) {
+        Ok(r) => r,
+        Err(e) => return fail(&subject, e),
+    };
+    if let Some(path) = &a.csv {
+        let mut buf = Vec::new();
+        if let Err(e) = ooksift::compare::write_csv(&report, &mut buf) {
+            return fail(&path.display().to_string(), e);
+        }
+        if let Err(e) = ooksift::output::write_atomic(path, &buf, a.force) {
+            return fail(&path.display().to_string(), e);
+        }
+    }
+    if a.json {
+        match serde_json::to_string_pretty(&report) {
+            Ok(s) => emit(&(s + "\n")),
+            Err(e) => return fail(&subject, e),
+        }
+    } else {
+        emit(&ooksift::compare::render_text(&report));
+    }
+    0
+}
+
+#[derive(Args, Debug)]
+struct SpectrumArgs {
+    /// An IQ capture (raw, stereo WAV or SigMF).
+    #[arg(value_name = "CAPTURE")]
+    capture: String,
+    #[command(flatten)]
+    input: InputArgs,
+    /// Print JSON (schemas/spectrum.schema.json) instead of text.
+    #[arg(long)]
+    json: bool,
+}
+
+/// What `spectrum --json` prints.
+#[derive(serde::Serialize)]
+struct SpectrumReport {
+    generator: String,
+    capture: ooksift::report::CaptureSummary,
+    bin_hz: f64,
+    frames: u64,
+    floor_db: f32,
+    carriers: Vec<CarrierLine>,
+    dc_spike: Option<ooksift::front::spectrum::DcSpike>,
+    caution: String,
+}
+
+#[derive(serde::Serialize)]
+struct CarrierLine {
+    offset_hz: f64,
+    frequency_hz: Option<f64>,
+    peak_db: f32,
+    average_db: f32,
+    snr_db: f32,
+    occupied_bw_hz: f64,
+    activity: f32,
+    kind: &'static str,
+}
+
+fn spectrum_cmd(a: SpectrumArgs) -> i32 {
+    let mut src = match ooksift::source::open(&a.capture, &a.input.open_options()) {
+        Ok(s) => s,
+        Err(e) => return fail(&a.capture, e),
+    };
+    let info = src.info().clone();
+    if !info.is_iq() {
+        return fail(
+            &a.capture,
+            "an envelope capture has no spectrum of carriers; spectrum needs IQ samples",
+        );
+    }
+    let survey = match ooksift::decode::survey_source(src.as_mut()) {
+        Ok(s) => s,
+        Err(e) => return fail(&a.capture, e),
+    };
+    let centre = info.center_frequency_hz;
+    let report = SpectrumReport {
+        generator: format!("ooksift {}", env!("CARGO_PKG_VERSION")),
+        capture: ooksift::report::CaptureSummary::new(&info, survey.samples),
+        bin_hz: survey.bin_hz,
+        frames: survey.frames,
+        floor_db: survey.floor_db,
+        carriers: survey
+            .carriers
+            .iter()
+            .map(|c| CarrierLine {
+                offset_hz: ooksift::units::round_to(c.offset_hz, 1),
+                frequency_hz: centre.map(|f| ooksift::units::round_to(f + c.offset_hz, 1)),
+                peak_db: c.peak_db,
+                average_db: c.avg_db,
+                snr_db: c.snr_db,
+                occupied_bw_hz: ooksift::units::round_to(c.occupied_bw_hz, 1),
+                activity: c.activity,
+                kind: if c.continuous { "continuous" } else { "bursty" },
+            })
+            .collect(),
+        dc_spike: survey.dc_spike.clone(),
+        caution: ooksift::report::CAUTION.to_string(),
+    };
+    if a.json {
+        match serde_json::to_string_pretty(&report) {
+            Ok(s) => emit(&(s + "\n")),
+            Err(e) => return fail(&a.capture, e),
+        }
+        return 0;
+    }
+    let mut t = format!(
+        "capture  {}\n         {} Hz, {} FFT frames of {:.0} Hz bins, floor {:.1} dB\n\n",
+        info.path,
+        info.rate.hz(),
+        survey.frames,
+        survey.bin_hz,
+        survey.floor_db
+    );
+    if report.carriers.is_empty() {
+        t.push_str("no carrier above the floor\n");
+    } else {
+        t.push_str(&format!(
+            "{:>12} {:>16} {:>9} {:>9} {:>7} {:>10} {:>9}  {}\n",
+            "offset kHz",
+            "frequency MHz",
+            "peak dB",
+            "avg dB",
+            "SNR dB",
+            "bw kHz",
+            "activity",
+            "kind"
+        ));
+        for c in &report.carriers {
+            t.push_str(&format!(
+                "{:>+12.2} {:>16} {:>9.1} {:>9.1} {:>7.1} {:>10.2} {:>9.2}  {}\n",
+                c.offset_hz / 1e3,
+                c.frequency_hz
+                    .map_or_else(|| "-".to_string(), |f| format!("{:.6}", f / 1e6)),
+                c.peak_db,
+                c.average_db,
+                c.snr_db,
+                c.occupied_bw_hz / 1e3,
+                c.activity,
+                c.kind
+            ));
+        }
+    }
+    if let Some(dc) = &report.dc_spike {
+        t.push_str(&format!(
+            "receiver DC offset at 0 Hz: {:.1} dB average (not a transmitter)\n",
+            dc.avg_db
+        ));
+    }
+    t.push_str(&format!("\n{}\n", ooksift::report::CAUTION));
+    emit(&t);
+    0
 }
 
 /// Reads a capture or a saved decode report into a report.
@@ -532,10 +755,30 @@ fn synth_cmd(a: SynthArgs) -> i32 {
         spec.channel.stretch_us = v;
     }
     if let Some(dc) = &a.dc {
-        spec.channel.dc = [dc[0], dc[1]];
+        let parsed = dc
+            .split_once(',')
+            .and_then(|(i, q)| Some([i.trim().parse().ok()?, q.trim().parse().ok()?]));
+        match parsed {
+            Some(pair) => spec.channel.dc = pair,
+            None => return fail(&out_name, format!("--dc {dc}: expected I,Q")),
+        }
     }
     if a.invert {
         spec.channel.invert = true;
+    }
+    for t in &a.tone {
+        let parsed = t
+            .split_once(',')
+            .and_then(|(f, v)| Some([f.trim().parse().ok()?, v.trim().parse().ok()?]));
+        match parsed {
+            Some(pair) => spec.channel.tones.push(pair),
+            None => {
+                return fail(
+                    &out_name,
+                    format!("--tone {t}: expected OFFSET_HZ,AMPLITUDE"),
+                )
+            }
+        }
     }
     if let Some(v) = a.lead_ms {
         spec.lead_ms = v;
@@ -571,6 +814,8 @@ pub fn run() -> i32 {
         Command::Decode(a) => decode(a),
         Command::Synth(a) => synth_cmd(a),
         Command::Budget(a) => budget_cmd(a),
+        Command::Compare(a) => compare_cmd(a),
+        Command::Spectrum(a) => spectrum_cmd(a),
         Command::Plot(a) => plot_cmd(a),
     }
 }

@@ -116,16 +116,18 @@ impl Decoder {
         )
     }
 
-    /// A pipeline reading one carrier's channel.
+    /// A pipeline reading one carrier's channel; `dc` (the receiver's DC offset) is removed
+    /// from every sample first.
     pub fn for_channel(
         info: CaptureInfo,
         opts: &DecodeOptions,
         plan: ChannelPlan,
+        dc: num_complex::Complex32,
     ) -> Result<Decoder, crate::front::FrontError> {
         let out = plan.out_rate_hz;
         let base = plan.nco_offset_hz;
         let smooth = (opts.smooth_us * 1e-6 * out).round() as usize;
-        let front = Front::Channel(Box::new(ChannelEnvelope::new(plan, smooth)?));
+        let front = Front::Channel(Box::new(ChannelEnvelope::new(plan, smooth)?.with_dc(dc)));
         Ok(Decoder::with_front(info, opts, front, out, Some(base)))
     }
 
@@ -440,7 +442,12 @@ pub fn decode_path(path: &str, opts: &DecodeOptions) -> Result<DecodeReport, Dec
         return decode_source(src.as_mut(), opts);
     }
     let info = src.info().clone();
-    let survey = survey_source(src.as_mut())?;
+    let (survey, mean) = survey_with_mean(src.as_mut())?;
+    let dc = if survey.dc_spike.is_some() {
+        mean
+    } else {
+        num_complex::Complex32::new(0.0, 0.0)
+    };
     let plans = channel_plans(&survey, &info, opts);
     let mut src = source::open(path, &opts.open)?;
     if plans.is_empty() {
@@ -452,7 +459,7 @@ pub fn decode_path(path: &str, opts: &DecodeOptions) -> Result<DecodeReport, Dec
     }
     let mut decoders: Vec<Decoder> = plans
         .into_iter()
-        .filter_map(|p| Decoder::for_channel(info.clone(), opts, p).ok())
+        .filter_map(|p| Decoder::for_channel(info.clone(), opts, p, dc).ok())
         .collect();
     while let Some(block) = src.next_block()? {
         for d in &mut decoders {
@@ -465,20 +472,42 @@ pub fn decode_path(path: &str, opts: &DecodeOptions) -> Result<DecodeReport, Dec
 
 /// Runs the spectrum survey over every block of an IQ source.
 pub fn survey_source(src: &mut dyn SampleSource) -> Result<Survey, DecodeError> {
+    survey_with_mean(src).map(|(s, _)| s)
+}
+
+/// The survey and the mean of all samples (the receiver's DC offset, when the survey sees one:
+/// carriers away from 0 Hz average out over a capture).
+pub fn survey_with_mean(
+    src: &mut dyn SampleSource,
+) -> Result<(Survey, num_complex::Complex32), DecodeError> {
+    let mut sum = num_complex::Complex64::new(0.0, 0.0);
+    let mut n = 0u64;
     let rate = src.info().rate.hz();
-    let mut survey = SpectrumSurvey::new(rate, SurveyConfig::for_rate(rate))
-        .map_err(|e| DecodeError::Front(e.to_string()))?;
+    // A carrier 6 dB above the noise's peak-hold is worth a channel: a false one costs only
+    // decoding time (the channel then yields no code), a missed one costs the code.
+    let mut cfg = SurveyConfig::for_rate(rate);
+    cfg.min_snr_db = cfg.min_snr_db.min(6.0);
+    let mut survey =
+        SpectrumSurvey::new(rate, cfg).map_err(|e| DecodeError::Front(e.to_string()))?;
     while let Some(block) = src.next_block()? {
         if let Samples::Iq(iq) = block {
             survey.push(iq);
+            for z in iq {
+                sum += num_complex::Complex64::new(z.re as f64, z.im as f64);
+            }
+            n += iq.len() as u64;
         }
     }
-    Ok(survey.finish())
+    let mean = if n > 0 { sum / n as f64 } else { sum };
+    Ok((
+        survey.finish(),
+        num_complex::Complex32::new(mean.re as f32, mean.im as f32),
+    ))
 }
 
-/// One channel per bursty carrier, strongest first: bandwidth from the carrier's occupied bandwidth, at least
-/// what a 100 µs mark needs with 5 kHz of drift, and at most what a 60 µs mark needs; output
-/// rate at least eight samples per 100 µs mark.
+/// One channel per bursty carrier, strongest first: bandwidth twice the carrier's occupied
+/// bandwidth plus 4 kHz for drift, between 8 kHz and what a 60 µs mark needs; output rate at
+/// least eight samples per 100 µs mark.
 pub fn channel_plans(
     survey: &Survey,
     info: &CaptureInfo,
@@ -486,14 +515,14 @@ pub fn channel_plans(
 ) -> Vec<ChannelPlan> {
     let rate = info.rate.hz();
     let widest = ChannelPlan::bandwidth_for_mark(60e-6, 5e3).unwrap_or(55e3);
-    let narrowest = ChannelPlan::bandwidth_for_mark(100e-6, 5e3).unwrap_or(35e3);
+    let narrowest = 8e3;
     let mut bursty: Vec<_> = survey.carriers.iter().filter(|c| !c.continuous).collect();
     bursty.sort_by(|a, b| b.peak_db.total_cmp(&a.peak_db));
     bursty
         .into_iter()
         .take(opts.max_channels)
         .filter_map(|c| {
-            let bw = (c.occupied_bw_hz * 1.2 + 10e3)
+            let bw = (2.0 * c.occupied_bw_hz + 4e3)
                 .clamp(narrowest, widest)
                 .min(rate / 2.0);
             let out = (8.0 / 100e-6_f64).max(2.0 * bw).min(rate);

@@ -92,17 +92,27 @@ pub struct ChannelEnvelope {
     ch: Channelizer,
     plan: ChannelPlan,
     iq: Vec<Complex32>,
+    input: Vec<Complex32>,
+    dc: Complex32,
     prev: Complex32,
     smoother: Smoother,
 }
 
 impl ChannelEnvelope {
+    /// Removes a constant `dc` (the receiver's DC offset) from every input sample.
+    pub fn with_dc(mut self, dc: Complex32) -> ChannelEnvelope {
+        self.dc = dc;
+        self
+    }
+
     /// A channel built from `plan`, averaging `smooth` output samples.
     pub fn new(plan: ChannelPlan, smooth: usize) -> Result<ChannelEnvelope, FrontError> {
         Ok(ChannelEnvelope {
             ch: Channelizer::new(&plan)?,
             plan,
             iq: Vec::new(),
+            input: Vec::new(),
+            dc: Complex32::new(0.0, 0.0),
             prev: Complex32::new(0.0, 0.0),
             smoother: Smoother::new(smooth),
         })
@@ -127,7 +137,13 @@ impl ChannelEnvelope {
     /// Appends the envelope of an IQ block to `out`.
     pub fn process(&mut self, block: &[Complex32], out: &mut EnvelopeBlock) {
         self.iq.clear();
-        self.ch.process_iq(block, &mut self.iq);
+        if self.dc == Complex32::new(0.0, 0.0) {
+            self.ch.process_iq(block, &mut self.iq);
+        } else {
+            self.input.clear();
+            self.input.extend(block.iter().map(|&z| z - self.dc));
+            self.ch.process_iq(&self.input, &mut self.iq);
+        }
         for &z in &self.iq {
             let l = z * self.prev.conj();
             self.prev = z;

@@ -69,6 +69,8 @@ pub struct ChannelSpec {
     pub stretch_us: f64,
     /// Envelope outputs: written upside down (marks low).
     pub invert: bool,
+    /// IQ outputs: continuous carriers (interferers) as [offset_hz, amplitude] pairs.
+    pub tones: Vec<[f64; 2]>,
 }
 
 impl Default for ChannelSpec {
@@ -81,6 +83,7 @@ impl Default for ChannelSpec {
             edge_us: 0.0,
             stretch_us: 0.0,
             invert: false,
+            tones: Vec::new(),
         }
     }
 }
@@ -99,6 +102,12 @@ pub struct PressSpec {
     pub repeats: usize,
     /// Silence between the previous press (or the lead-in) and this one.
     pub gap_before_ms: Option<f64>,
+    /// Start time from the capture start, instead of after the previous press (presses may
+    /// then overlap in time).
+    pub at_ms: Option<f64>,
+    /// Carrier drift across the press: the offset moves linearly by this much from the first
+    /// mark to the last.
+    pub drift_hz: f64,
     /// Carrier offset from the centre (IQ outputs).
     pub carrier_offset_hz: f64,
     /// Carrier phase at the press start in radians (random when absent).
@@ -129,6 +138,8 @@ impl Default for PressSpec {
             unit_us: 350.0,
             repeats: 5,
             gap_before_ms: None,
+            at_ms: None,
+            drift_hz: 0.0,
             carrier_offset_hz: 0.0,
             phase: None,
             clock_error: 0.0,
@@ -300,7 +311,8 @@ impl Layout {
 
 /// Parses a press given on the command line: `LINECODE:BITS[,key=value...]`.
 ///
-/// Keys: `unit_us`, `repeats`, `gap_ms` (silence before the press), `offset_hz`, `phase`,
+/// Keys: `unit_us`, `repeats`, `gap_ms` (silence before the press), `at_ms` (absolute
+/// start), `offset_hz`, `drift_hz`, `phase`,
 /// `clock_error`, `zero=M/S`, `one=M/S`, `header=M/S`, `closing=U`, `gap_units=U`, and for
 /// NRZ `preamble=N` (alternating bits) and `sync=BITS`.
 ///
@@ -342,6 +354,8 @@ pub fn parse_press(text: &str) -> Result<PressSpec, SynthError> {
                     .map_err(|_| bad(format!("repeats={v} is not a count")))?
             }
             "gap_ms" => p.gap_before_ms = Some(num(k, v)?),
+            "at_ms" => p.at_ms = Some(num(k, v)?),
+            "drift_hz" => p.drift_hz = num(k, v)?,
             "offset_hz" => p.carrier_offset_hz = num(k, v)?,
             "phase" => p.phase = Some(num(k, v)?),
             "clock_error" => p.clock_error = num(k, v)?,

