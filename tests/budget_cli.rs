@@ -14,13 +14,34 @@ fn airtime_within_one_sample_and_the_last_repeat_matches_a_hand_calculation() {
     // data 0xAAAAAA, 8 repeats. Envelope at 250 kHz: one sample is 4 µs.
     let truth = synth(
         &out,
-        &["--rate", "250000", "--noiseless", "--press", "pwm:0xaaaaaa,unit_us=350,repeats=8"],
+        &[
+            "--rate",
+            "250000",
+            "--noiseless",
+            "--press",
+            "pwm:0xaaaaaa,unit_us=350,repeats=8",
+        ],
     );
     let t = &truth["codes"][0];
     let path = out.to_str().expect("utf-8");
     let r = run(&[
-        "budget", path, "--rate", "250000", "--json", "--supply-v", "3", "--mark-ma", "10",
-        "--space-ma", "1", "--store-uf", "100", "--start-v", "6", "--cutoff-v", "2.5",
+        "budget",
+        path,
+        "--rate",
+        "250000",
+        "--json",
+        "--supply-v",
+        "3",
+        "--mark-ma",
+        "10",
+        "--space-ma",
+        "1",
+        "--store-uf",
+        "100",
+        "--start-v",
+        "6",
+        "--cutoff-v",
+        "2.5",
     ]);
     assert!(r.status.success(), "{}", String::from_utf8_lossy(&r.stderr));
     let b: serde_json::Value = serde_json::from_slice(&r.stdout).expect("JSON");
@@ -47,7 +68,9 @@ fn airtime_within_one_sample_and_the_last_repeat_matches_a_hand_calculation() {
     assert!(e(2.0) < usable && usable < e(3.0));
     let store = &b["codes"][0]["energy"]["presses"][0]["store"];
     assert_eq!(store["last_complete_repeat"], 2, "{store}");
-    let u = b["codes"][0]["energy"]["usable_energy_uj"].as_f64().expect("number");
+    let u = b["codes"][0]["energy"]["usable_energy_uj"]
+        .as_f64()
+        .expect("number");
     assert!((u - usable).abs() < 0.5, "usable {u} vs {usable}");
 }
 
@@ -55,7 +78,17 @@ fn airtime_within_one_sample_and_the_last_repeat_matches_a_hand_calculation() {
 fn a_saved_report_budgets_like_its_capture() {
     let d = tempfile::tempdir().expect("tempdir");
     let out = d.path().join("gate.cu8");
-    synth(&out, &["--rate", "250000", "--snr-db", "25", "--press", "pwm:0x6b2d41,repeats=6"]);
+    synth(
+        &out,
+        &[
+            "--rate",
+            "250000",
+            "--snr-db",
+            "25",
+            "--press",
+            "pwm:0x6b2d41,repeats=6",
+        ],
+    );
     let path = out.to_str().expect("utf-8");
     let dec = run(&["decode", "--json", "--rate", "250000", path]);
     let rep = d.path().join("gate.json");
