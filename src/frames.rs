@@ -7,7 +7,8 @@
 //!
 //! A press yields a code when its best line-code score is at least [`MIN_SCORE`], it holds at
 //! least [`MIN_BITS`] bits, and either two frames read exactly the voted code or its single
-//! frame scores at least [`SINGLE_FRAME_SCORE`].
+//! frame scores at least [`SINGLE_FRAME_SCORE`] and holds at least [`SINGLE_FRAME_BITS`] bits
+//! (noise readily forms one short, plausible frame; it does not repeat one).
 
 use crate::bursts::Burst;
 use crate::coding::{self, Layout, LineCode};
@@ -21,7 +22,9 @@ pub const MIN_SCORE: f64 = 0.5;
 /// Fewest data bits a code may have.
 pub const MIN_BITS: usize = 4;
 /// Score a press with a single frame needs.
-pub const SINGLE_FRAME_SCORE: f64 = 0.85;
+pub const SINGLE_FRAME_SCORE: f64 = 0.9;
+/// Bits a press with a single frame needs.
+pub const SINGLE_FRAME_BITS: usize = 8;
 
 /// One frame of a press, in capture samples.
 #[derive(Debug, Clone, PartialEq)]
@@ -211,7 +214,8 @@ pub fn decode_press_with(burst: &Burst, opts: &PressOptions) -> Option<PressDeco
         .map(|f| f.bits.iter().zip(&bits).filter(|(a, b)| a != b).count())
         .sum();
     let exact = full.iter().filter(|f| f.bits == bits).count();
-    let accepted = exact >= 2 || (full.len() == 1 && best.score >= SINGLE_FRAME_SCORE);
+    let accepted = exact >= 2
+        || (full.len() == 1 && best.score >= SINGLE_FRAME_SCORE && len >= SINGLE_FRAME_BITS);
     if !accepted {
         return None;
     }
