@@ -320,7 +320,12 @@ fn decode_channel_given(
     let out = (8.0 / 100e-6_f64).max(2.0 * bw).min(RATE_HZ);
     let plan = ChannelPlan::design(RATE_HZ, OFFSET_HZ, bw, out)?;
     let mut src = ooksift::source::open(path, &opts.open)?;
-    let mut dec = Decoder::for_channel(src.info().clone(), opts, plan)?;
+    let mut dec = Decoder::for_channel(
+        src.info().clone(),
+        opts,
+        plan,
+        num_complex::Complex32::new(0.0, 0.0),
+    )?;
     while let Some(block) = src.next_block()? {
         dec.push(block);
     }
