@@ -303,19 +303,14 @@ fn compare_cmd(a: CompareArgs) -> i32 {
         Ok(r) => r,
         Err(e) => return fail(&subject, e),
     };
-    if let Some(path) = &a.csv {
-        let mut buf = Vec::new();
-        if let Err(e) = ooksift::compare::write_csv(&report, &mut buf) {
-            return fail(&path.display().to_string(), e);
-        }
-        if let Err(e) = ooksift::output::write_atomic(path, &buf, a.force) {
-            return fail(&path.display().to_string(), e);
-        }
+    if let Err(code) = write_csv_file(a.csv.as_deref(), a.force, |w| {
+        ooksift::compare::write_csv(&report, w).map_err(|e| e.to_string())
+    }) {
+        return code;
     }
     if a.json {
-        match serde_json::to_string_pretty(&report) {
-            Ok(s) => emit(&(s + "\n")),
-            Err(e) => return fail(&subject, e),
+        if let Err(code) = emit_json(&subject, &report) {
+            return code;
         }
     } else {
         emit(&ooksift::compare::render_text(&report));
@@ -401,11 +396,7 @@ fn spectrum_cmd(a: SpectrumArgs) -> i32 {
         caution: ooksift::report::CAUTION.to_string(),
     };
     if a.json {
-        match serde_json::to_string_pretty(&report) {
-            Ok(s) => emit(&(s + "\n")),
-            Err(e) => return fail(&a.capture, e),
-        }
-        return 0;
+        return emit_json(&a.capture, &report).err().unwrap_or(0);
     }
     let mut t = format!(
         "capture  {}\n         {} Hz, {} FFT frames of {:.0} Hz bins, floor {:.1} dB\n\n",
@@ -606,19 +597,14 @@ fn budget_cmd(a: BudgetArgs) -> i32 {
         Ok(b) => b,
         Err(e) => return fail(&a.input, e),
     };
-    if let Some(path) = &a.csv {
-        let mut buf = Vec::new();
-        if let Err(e) = ooksift::budget::write_csv(&b, &mut buf) {
-            return fail(&path.display().to_string(), e);
-        }
-        if let Err(e) = ooksift::output::write_atomic(path, &buf, a.force) {
-            return fail(&path.display().to_string(), e);
-        }
+    if let Err(code) = write_csv_file(a.csv.as_deref(), a.force, |w| {
+        ooksift::budget::write_csv(&b, w).map_err(|e| e.to_string())
+    }) {
+        return code;
     }
     if a.json {
-        match serde_json::to_string_pretty(&b) {
-            Ok(s) => emit(&(s + "\n")),
-            Err(e) => return fail(&a.input, e),
+        if let Err(code) = emit_json(&a.input, &b) {
+            return code;
         }
     } else {
         if report.codes.is_empty() {
@@ -627,6 +613,27 @@ fn budget_cmd(a: BudgetArgs) -> i32 {
         emit(&ooksift::budget::render_text(&b));
     }
     0
+}
+
+/// Writes a CSV file (when asked for) atomically from a writer callback; on failure the error
+/// line is printed and the exit status returned.
+fn write_csv_file(
+    path: Option<&std::path::Path>,
+    force: bool,
+    write: impl FnOnce(&mut Vec<u8>) -> Result<(), String>,
+) -> Result<(), i32> {
+    let Some(path) = path else { return Ok(()) };
+    let name = path.display().to_string();
+    let mut buf = Vec::new();
+    write(&mut buf).map_err(|e| fail(&name, e))?;
+    ooksift::output::write_atomic(path, &buf, force).map_err(|e| fail(&name, e))
+}
+
+/// Prints one pretty JSON document on stdout.
+fn emit_json<T: serde::Serialize>(subject: &str, value: &T) -> Result<(), i32> {
+    let s = serde_json::to_string_pretty(value).map_err(|e| fail(subject, e))?;
+    emit(&(s + "\n"));
+    Ok(())
 }
 
 /// Prints to stdout; a closed pipe ends the program quietly.
