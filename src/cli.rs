@@ -62,7 +62,7 @@ impl InputArgs {
 
 #[derive(Args, Debug)]
 struct DecodeArgs {
-    /// Capture file, or - for standard input.
+    /// Capture files or folders of captures (decoded in parallel), or - for standard input.
     #[arg(value_name = "CAPTURE", required = true)]
     captures: Vec<String>,
     #[command(flatten)]
@@ -70,6 +70,12 @@ struct DecodeArgs {
     /// Print the JSON report (schemas/decode.schema.json) instead of text.
     #[arg(long)]
     json: bool,
+    /// Print one compact JSON report per capture per line (for scripts and batch jobs).
+    #[arg(long, conflicts_with = "json")]
+    jsonl: bool,
+    /// No summary line on stderr after several captures.
+    #[arg(long)]
+    quiet: bool,
     /// Silence in ms that always separates two presses (default 80).
     #[arg(long, value_name = "MS")]
     press_gap_ms: Option<f64>,
@@ -676,25 +682,126 @@ fn decode(args: DecodeArgs) -> i32 {
         },
         ..DecodeOptions::default()
     };
+    let inputs = match expand_inputs(&args.captures) {
+        Ok(v) => v,
+        Err((path, e)) => return fail(&path, e),
+    };
     let mut status = 0;
     let mut reports: Vec<DecodeReport> = Vec::new();
-    for path in &args.captures {
-        match decode_path(path, &opts) {
+    for (path, result) in inputs.iter().zip(decode_all(&inputs, &opts)) {
+        match result {
             Ok(r) => reports.push(r),
             Err(e) => status = fail(path, e),
         }
     }
     for r in &reports {
-        if args.json {
-            match serde_json::to_string_pretty(r) {
+        if args.jsonl {
+            match serde_json::to_string(r) {
                 Ok(s) => emit(&(s + "\n")),
                 Err(e) => status = fail(&r.capture.path, e),
+            }
+        } else if args.json {
+            if let Err(code) = emit_json(&r.capture.path, r) {
+                status = code;
             }
         } else {
             emit(&render_text(r));
         }
     }
+    if inputs.len() > 1 && !args.quiet {
+        let codes: usize = reports.iter().map(|r| r.codes.len()).sum();
+        eprintln!(
+            "ooksift: {} capture(s) decoded, {} code(s) found, {} failed",
+            reports.len(),
+            codes,
+            inputs.len() - reports.len()
+        );
+    }
     write_interchange(&args, &reports).max(status)
+}
+
+/// Capture names in a folder (recursively, sorted): WAV, SigMF metadata, and raw files whose
+/// extension is a datatype. Plain files and `-` pass through as given.
+fn expand_inputs(inputs: &[String]) -> Result<Vec<String>, (String, String)> {
+    fn is_capture(p: &std::path::Path) -> bool {
+        let name = p.file_name().and_then(|n| n.to_str()).unwrap_or("");
+        if name.starts_with('.') {
+            return false;
+        }
+        let lower = name.to_ascii_lowercase();
+        lower.ends_with(".wav")
+            || lower.ends_with(".sigmf-meta")
+            || p.extension()
+                .and_then(|e| e.to_str())
+                .is_some_and(|e| e.parse::<ooksift::source::Datatype>().is_ok())
+    }
+    fn walk(dir: &std::path::Path, out: &mut Vec<String>) -> std::io::Result<()> {
+        let mut entries: Vec<_> = std::fs::read_dir(dir)?
+            .filter_map(|e| e.ok().map(|e| e.path()))
+            .collect();
+        entries.sort();
+        for p in entries {
+            if p.is_dir() {
+                walk(&p, out)?;
+            } else if is_capture(&p) {
+                out.push(p.display().to_string());
+            }
+        }
+        Ok(())
+    }
+    let mut out = Vec::new();
+    for i in inputs {
+        let p = std::path::Path::new(i);
+        if i != "-" && p.is_dir() {
+            let before = out.len();
+            walk(p, &mut out).map_err(|e| (i.clone(), format!("cannot list the folder: {e}")))?;
+            if out.len() == before {
+                return Err((i.clone(), "the folder holds no capture".into()));
+            }
+        } else {
+            out.push(i.clone());
+        }
+    }
+    Ok(out)
+}
+
+/// Decodes every input, several at a time on all cores; results come back in input order.
+fn decode_all(
+    inputs: &[String],
+    opts: &DecodeOptions,
+) -> Vec<Result<DecodeReport, ooksift::decode::DecodeError>> {
+    let workers = std::thread::available_parallelism()
+        .map_or(1, |n| n.get())
+        .min(inputs.len())
+        .max(1);
+    if workers == 1 {
+        return inputs.iter().map(|p| decode_path(p, opts)).collect();
+    }
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    let slots: Vec<std::sync::Mutex<Option<_>>> =
+        inputs.iter().map(|_| std::sync::Mutex::new(None)).collect();
+    std::thread::scope(|scope| {
+        for _ in 0..workers {
+            scope.spawn(|| loop {
+                let i = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                let Some(path) = inputs.get(i) else { break };
+                let r = decode_path(path, opts);
+                if let Ok(mut slot) = slots[i].lock() {
+                    *slot = Some(r);
+                }
+            });
+        }
+    });
+    slots
+        .into_iter()
+        .map(|m| {
+            m.into_inner().ok().flatten().unwrap_or_else(|| {
+                Err(ooksift::decode::DecodeError::Front(
+                    "a decoding thread failed".into(),
+                ))
+            })
+        })
+        .collect()
 }
 
 fn synth_cmd(a: SynthArgs) -> i32 {
