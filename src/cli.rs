@@ -30,6 +30,13 @@ enum Command {
     Compare(CompareArgs),
     /// Carriers in an IQ capture: offset, frequency, peak and average level, bandwidth.
     Spectrum(SpectrumArgs),
+    /// Print shell completions for bash, zsh, fish, elvish or powershell.
+    Completions {
+        /// The shell.
+        shell: clap_complete::Shell,
+    },
+    /// Print the manual page (roff), generated from these definitions.
+    Manual,
     /// Draw a capture as SVG: envelope with marks, frames and bits; width histograms.
     Plot(PlotArgs),
 }
@@ -635,6 +642,41 @@ fn write_csv_file(
     ooksift::output::write_atomic(path, &buf, force).map_err(|e| fail(&name, e))
 }
 
+/// A progress bar on stderr for one long capture: only when stderr is a terminal and not
+/// `quiet`, and drawn only once the work has lasted two seconds. No colour is used anywhere,
+/// so NO_COLOR and pipes need no special case.
+fn progress_bar(quiet: bool) -> Option<(indicatif::ProgressBar, ooksift::decode::Progress)> {
+    use std::io::IsTerminal;
+    if quiet || !std::io::stderr().is_terminal() {
+        return None;
+    }
+    let bar = indicatif::ProgressBar::hidden();
+    bar.set_style(
+        indicatif::ProgressStyle::with_template("{spinner} {percent:>3}% {wide_bar} {eta}")
+            .unwrap_or_else(|_| indicatif::ProgressStyle::default_bar()),
+    );
+    let start = std::time::Instant::now();
+    let shown = std::sync::atomic::AtomicBool::new(false);
+    let b = bar.clone();
+    let f = move |done: u64, total: u64| {
+        if total == 0 {
+            return;
+        }
+        if !shown.load(std::sync::atomic::Ordering::Relaxed) {
+            if start.elapsed() < std::time::Duration::from_secs(2) {
+                return;
+            }
+            shown.store(true, std::sync::atomic::Ordering::Relaxed);
+            b.set_length(total);
+            b.set_position(done.min(total));
+            b.set_draw_target(indicatif::ProgressDrawTarget::stderr());
+        }
+        b.set_length(total);
+        b.set_position(done.min(total));
+    };
+    Some((bar, ooksift::decode::Progress(std::sync::Arc::new(f))))
+}
+
 /// Prints one pretty JSON document on stdout.
 fn emit_json<T: serde::Serialize>(subject: &str, value: &T) -> Result<(), i32> {
     let s = serde_json::to_string_pretty(value).map_err(|e| fail(subject, e))?;
@@ -673,6 +715,7 @@ fn decode(args: DecodeArgs) -> i32 {
     if let Some(code) = refuse_existing_outputs(&args) {
         return code;
     }
+    let progress = progress_bar(args.quiet || args.captures.len() > 1);
     let opts = DecodeOptions {
         open: args.input.open_options(),
         press_gap_ms: args.press_gap_ms,
@@ -680,6 +723,7 @@ fn decode(args: DecodeArgs) -> i32 {
             line_code,
             manchester_thomas,
         },
+        progress: progress.as_ref().map(|(_, p)| p.clone()),
         ..DecodeOptions::default()
     };
     let inputs = match expand_inputs(&args.captures) {
@@ -693,6 +737,9 @@ fn decode(args: DecodeArgs) -> i32 {
             Ok(r) => reports.push(r),
             Err(e) => status = fail(path, e),
         }
+    }
+    if let Some((bar, _)) = &progress {
+        bar.finish_and_clear();
     }
     for r in &reports {
         if args.jsonl {
@@ -930,6 +977,24 @@ pub fn run() -> i32 {
         Command::Budget(a) => budget_cmd(a),
         Command::Compare(a) => compare_cmd(a),
         Command::Spectrum(a) => spectrum_cmd(a),
+        Command::Completions { shell } => {
+            let mut cmd = <Cli as clap::CommandFactory>::command();
+            let mut buf = Vec::new();
+            clap_complete::generate(shell, &mut cmd, "ooksift", &mut buf);
+            emit(&String::from_utf8_lossy(&buf));
+            0
+        }
+        Command::Manual => {
+            let cmd = <Cli as clap::CommandFactory>::command();
+            let mut buf = Vec::new();
+            match clap_mangen::Man::new(cmd).render(&mut buf) {
+                Ok(()) => {
+                    emit(&String::from_utf8_lossy(&buf));
+                    0
+                }
+                Err(e) => fail("manual", e),
+            }
+        }
         Command::Plot(a) => plot_cmd(a),
     }
 }

@@ -35,6 +35,17 @@ pub enum DecodeError {
     Front(String),
 }
 
+/// A progress callback: samples processed so far and the expected total (0 when unknown),
+/// counted over every pass the decode makes.
+#[derive(Clone)]
+pub struct Progress(pub std::sync::Arc<dyn Fn(u64, u64) + Send + Sync>);
+
+impl std::fmt::Debug for Progress {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str("Progress")
+    }
+}
+
 /// Options of a decode.
 #[derive(Debug, Clone)]
 pub struct DecodeOptions {
@@ -54,6 +65,8 @@ pub struct DecodeOptions {
     pub channels: bool,
     /// Channels decoded at most (the strongest carriers first).
     pub max_channels: usize,
+    /// Called after every block with the samples processed so far.
+    pub progress: Option<Progress>,
 }
 
 impl Default for DecodeOptions {
@@ -67,6 +80,7 @@ impl Default for DecodeOptions {
             press: frames::PressOptions::default(),
             channels: true,
             max_channels: 8,
+            progress: None,
         }
     }
 }
@@ -425,8 +439,14 @@ pub fn decode_source(
     opts: &DecodeOptions,
 ) -> Result<DecodeReport, DecodeError> {
     let mut dec = Decoder::new(src.info().clone(), opts);
+    let total = src.info().declared_samples.unwrap_or(0);
+    let mut done = 0u64;
     while let Some(block) = src.next_block()? {
+        done += block.len() as u64;
         dec.push(block);
+        if let Some(p) = &opts.progress {
+            (p.0)(done, total);
+        }
     }
     Ok(dec.finish())
 }
@@ -442,7 +462,13 @@ pub fn decode_path(path: &str, opts: &DecodeOptions) -> Result<DecodeReport, Dec
         return decode_source(src.as_mut(), opts);
     }
     let info = src.info().clone();
-    let (survey, mean) = survey_with_mean(src.as_mut())?;
+    let total = info.declared_samples.unwrap_or(0) * 2;
+    let tick = |done: u64| {
+        if let Some(p) = &opts.progress {
+            (p.0)(done, total);
+        }
+    };
+    let (survey, mean) = survey_with_mean_progress(src.as_mut(), &tick)?;
     let dc = if survey.dc_spike.is_some() {
         mean
     } else {
@@ -461,10 +487,13 @@ pub fn decode_path(path: &str, opts: &DecodeOptions) -> Result<DecodeReport, Dec
         .into_iter()
         .filter_map(|p| Decoder::for_channel(info.clone(), opts, p, dc).ok())
         .collect();
+    let mut done = info.declared_samples.unwrap_or(0);
     while let Some(block) = src.next_block()? {
+        done += block.len() as u64;
         for d in &mut decoders {
             d.push(block);
         }
+        tick(done);
     }
     let reports: Vec<DecodeReport> = decoders.into_iter().map(Decoder::finish).collect();
     Ok(merge_reports(reports))
@@ -479,6 +508,13 @@ pub fn survey_source(src: &mut dyn SampleSource) -> Result<Survey, DecodeError> 
 /// carriers away from 0 Hz average out over a capture).
 pub fn survey_with_mean(
     src: &mut dyn SampleSource,
+) -> Result<(Survey, num_complex::Complex32), DecodeError> {
+    survey_with_mean_progress(src, &|_| {})
+}
+
+fn survey_with_mean_progress(
+    src: &mut dyn SampleSource,
+    tick: &dyn Fn(u64),
 ) -> Result<(Survey, num_complex::Complex32), DecodeError> {
     let mut sum = num_complex::Complex64::new(0.0, 0.0);
     let mut n = 0u64;
@@ -496,6 +532,7 @@ pub fn survey_with_mean(
                 sum += num_complex::Complex64::new(z.re as f64, z.im as f64);
             }
             n += iq.len() as u64;
+            tick(n);
         }
     }
     let mean = if n > 0 { sum / n as f64 } else { sum };
