@@ -80,9 +80,12 @@ struct DecodeArgs {
     /// Print one compact JSON report per capture per line (for scripts and batch jobs).
     #[arg(long, conflicts_with = "json")]
     jsonl: bool,
-    /// No summary line on stderr after several captures.
+    /// No summary line on stderr after several captures, and no progress bar.
     #[arg(long)]
     quiet: bool,
+    /// Captures decoded at once (default: one per core).
+    #[arg(long, value_name = "N")]
+    jobs: Option<usize>,
     /// Silence in ms that always separates two presses (default 80).
     #[arg(long, value_name = "MS")]
     press_gap_ms: Option<f64>,
@@ -732,7 +735,7 @@ fn decode(args: DecodeArgs) -> i32 {
     };
     let mut status = 0;
     let mut reports: Vec<DecodeReport> = Vec::new();
-    for (path, result) in inputs.iter().zip(decode_all(&inputs, &opts)) {
+    for (path, result) in inputs.iter().zip(decode_all(&inputs, &opts, args.jobs)) {
         match result {
             Ok(r) => reports.push(r),
             Err(e) => status = fail(path, e),
@@ -816,9 +819,10 @@ fn expand_inputs(inputs: &[String]) -> Result<Vec<String>, (String, String)> {
 fn decode_all(
     inputs: &[String],
     opts: &DecodeOptions,
+    jobs: Option<usize>,
 ) -> Vec<Result<DecodeReport, ooksift::decode::DecodeError>> {
-    let workers = std::thread::available_parallelism()
-        .map_or(1, |n| n.get())
+    let workers = jobs
+        .unwrap_or_else(|| std::thread::available_parallelism().map_or(1, |n| n.get()))
         .min(inputs.len())
         .max(1);
     if workers == 1 {

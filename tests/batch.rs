@@ -47,3 +47,20 @@ fn a_folder_decodes_like_one_by_one_runs() {
         assert_eq!(batch["codes"], single["codes"], "{}", f.display());
     }
 }
+
+#[test]
+fn completions_and_the_manual_come_from_the_cli_definition() {
+    let c = run(&["completions", "bash"]);
+    assert!(c.status.success());
+    let text = String::from_utf8_lossy(&c.stdout);
+    for sub in ["decode", "spectrum", "compare", "budget", "plot", "synth"] {
+        assert!(text.contains(sub), "completions lack {sub}");
+    }
+    let m = run(&["manual"]);
+    assert!(m.status.success());
+    let page = String::from_utf8_lossy(&m.stdout);
+    assert!(
+        page.starts_with(".ie") || page.contains(".TH ooksift"),
+        "{page}"
+    );
+}
