@@ -18,7 +18,9 @@
 //! - the press has a single full-length frame and it is clean by a clear margin: its
 //!   line-code score is at least [`SINGLE_FRAME_SCORE`].
 //!
-//! Two frames that differ cannot be settled by a vote, so they are never enough.
+//! Two frames that differ cannot be settled by a vote, so they are never enough. Finally the
+//! widths must look like a code: the median mark at least [`MIN_MARK_UNITS`] and the median
+//! space inside frames at most [`MAX_SPACE_UNITS`] units (sparse noise spikes fail both).
 
 use crate::bursts::Burst;
 use crate::coding::{self, Layout, LineCode};
@@ -31,6 +33,10 @@ pub const GLITCH_FRACTION: f64 = 0.2;
 pub const MIN_SCORE: f64 = 0.5;
 /// Fewest data bits a code may have.
 pub const MIN_BITS: usize = 4;
+/// Median mark width, in units, below which a press is noise (spikes), not a code.
+pub const MIN_MARK_UNITS: f64 = 0.5;
+/// Median space inside frames, in units, above which a press is noise, not a code.
+pub const MAX_SPACE_UNITS: f64 = 6.0;
 /// Score a press with a single frame needs.
 pub const SINGLE_FRAME_SCORE: f64 = 0.85;
 
@@ -255,6 +261,18 @@ pub fn decode_press_with(burst: &Burst, opts: &PressOptions) -> Option<PressDeco
     let single_clean = full.len() == 1 && best.score >= SINGLE_FRAME_SCORE;
     let accepted = exact >= 2 || (full.len() >= 3 && exact >= 1) || single_clean;
     if !accepted {
+        return None;
+    }
+    // Structure check: a code's marks are about a unit or more and its spaces inside a frame
+    // a few units; sparse noise spikes read as one long "frame" are neither.
+    let (mut mw, mut sw) = (Vec::new(), Vec::new());
+    for f in &full {
+        let ms = &burst.marks[f.first_mark..=f.last_mark];
+        mw.extend(ms.iter().map(|m| m.width()));
+        sw.extend(ms.windows(2).map(|w| w[1].rise - w[0].fall));
+    }
+    let unit = best.unit.max(1e-12);
+    if median(&mw) < MIN_MARK_UNITS * unit || median(&sw) > MAX_SPACE_UNITS * unit {
         return None;
     }
     let marks = &burst.marks;

@@ -219,3 +219,130 @@ fn stretched_marks_decode_in_an_envelope() {
     let s = spec("ri16_le", 100e3, ch, vec![press("pwm", BITS, 350.0, 5)]);
     round_trip(dir.path(), "stretch.ri16_le", &s);
 }
+
+#[test]
+fn a_capture_cut_inside_a_press_flags_partial_frames() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let ch = ChannelSpec {
+        snr_db: Some(25.0),
+        ..ChannelSpec::default()
+    };
+    // Frames of 44.8 ms from 40 ms on; the capture is cut 15 ms into the first frame and
+    // 16 ms into the sixth (cu8: two bytes per sample at 250 kHz).
+    let s = spec("cu8", 250e3, ch, vec![press("pwm", BITS, 350.0, 6)]);
+    let out = dir.path().join("cut.cu8");
+    write_capture(&s, &out, true).expect("synth writes");
+    let bytes = std::fs::read(&out).expect("readable");
+    let at = |ms: f64| (ms * 1e-3 * 250e3) as usize * 2;
+    let cut = dir.path().join("cut-inside.cu8");
+    std::fs::write(&cut, &bytes[at(55.0)..at(280.0)]).expect("writable");
+    let r = decode_json(&cut, &["--rate", "250000"]);
+    assert_valid("decode.schema.json", &r);
+    let codes = r["codes"].as_array().expect("codes");
+    assert_eq!(codes.len(), 1, "{r}");
+    assert_eq!(codes[0]["bits"], BITS);
+    assert_eq!(codes[0]["frames"], 4);
+    assert!(codes[0]["partial_frames"].as_u64() >= Some(1), "{r}");
+}
+
+#[test]
+fn tristate_view_and_width_clusters_are_reported() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let ch = ChannelSpec {
+        snr_db: Some(25.0),
+        ..ChannelSpec::default()
+    };
+    // Pairs 00 11 01 00 11 11 01 01 00 11 01 00 → 01F011FF01F0.
+    let bits = "001101001111010100110100";
+    let s = spec("cu8", 250e3, ch, vec![press("pwm", bits, 350.0, 4)]);
+    let r = round_trip(dir.path(), "tri.cu8", &s);
+    let c = &r["codes"][0];
+    assert_eq!(c["tristate"], "01F011FF01F0");
+    // 1:3 PWM with a 1-unit closing mark: marks of 1 and 3 units, spaces of 1 and 3 units.
+    for k in ["marks", "spaces"] {
+        let cl = c["clusters"][k].as_array().expect("clusters");
+        assert_eq!(cl.len(), 2, "{k}: {cl:?}");
+        let u: Vec<f64> = cl.iter().filter_map(|x| x["units"].as_f64()).collect();
+        assert!(
+            (u[0] - 1.0).abs() < 0.15 && (u[1] - 3.0).abs() < 0.15,
+            "{k}: {u:?}"
+        );
+    }
+    let marks: u64 = c["clusters"]["marks"]
+        .as_array()
+        .expect("marks")
+        .iter()
+        .filter_map(|x| x["count"].as_u64())
+        .sum();
+    assert_eq!(marks, 4 * 25);
+    // A code with a 10 pair has no tri-state view.
+    let s = spec(
+        "cu8",
+        250e3,
+        s.channel.clone(),
+        vec![press("pwm", BITS, 350.0, 4)],
+    );
+    let r = round_trip(dir.path(), "notri.cu8", &s);
+    assert!(r["codes"][0]["tristate"].is_null());
+    // The text view shows the clusters and the tri-state symbols.
+    let text = common::run(&[
+        "decode",
+        dir.path().join("tri.cu8").to_str().expect("utf-8"),
+        "--rate",
+        "250000",
+    ]);
+    let text = String::from_utf8_lossy(&text.stdout);
+    assert!(text.contains("tristate  01F011FF01F0"), "{text}");
+    assert!(text.contains("widths    marks 1."), "{text}");
+}
+
+/// 60 s of noise and nothing else, in every input format, at 48 kHz to stay quick.
+#[test]
+fn sixty_seconds_of_noise_give_no_code_in_any_format() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    for (i, fmt) in [
+        "cu8", "ci8", "ci16_le", "cf32_le", "ru8", "ri16_le", "rf32_le", "wav", "wav-iq", "sigmf",
+    ]
+    .into_iter()
+    .enumerate()
+    {
+        let s = SynthSpec {
+            format: fmt.into(),
+            rate_hz: 48e3,
+            seed: 300 + i as u64,
+            min_duration_ms: 60_000.0,
+            ..SynthSpec::default()
+        };
+        let ext = match fmt {
+            "wav" | "wav-iq" => "wav",
+            "sigmf" => "sigmf-meta",
+            f => f,
+        };
+        let out = dir.path().join(format!("noise{i}.{ext}"));
+        write_capture(&s, &out, true).expect("synth writes");
+        let r = if matches!(fmt, "wav" | "wav-iq" | "sigmf") {
+            decode_json(&out, &[])
+        } else {
+            decode_json(&out, &["--rate", "48000"])
+        };
+        assert_eq!(r["codes"].as_array().map(Vec::len), Some(0), "{fmt}: {r}");
+    }
+}
+
+#[test]
+fn superregenerative_chatter_is_never_a_code() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let ch = ChannelSpec {
+        snr_db: Some(25.0),
+        chatter: true,
+        ..ChannelSpec::default()
+    };
+    let s = SynthSpec {
+        min_duration_ms: 60_000.0,
+        ..spec("wav", 48e3, ch, vec![])
+    };
+    let out = dir.path().join("chatter.wav");
+    write_capture(&s, &out, true).expect("synth writes");
+    let r = decode_json(&out, &[]);
+    assert_eq!(r["codes"].as_array().map(Vec::len), Some(0), "{r}");
+}
