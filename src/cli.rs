@@ -158,6 +158,18 @@ struct SynthArgs {
     /// Envelope outputs: write the envelope upside down.
     #[arg(long)]
     invert: bool,
+    /// Envelope outputs: AC coupling, a single-pole high-pass of this time constant (ms).
+    #[arg(long, value_name = "MS")]
+    ac_tau_ms: Option<f64>,
+    /// Envelope outputs: clip samples to ±LEVEL (full scale 1).
+    #[arg(long, value_name = "LEVEL")]
+    clip: Option<f64>,
+    /// Displace every edge by Gaussian jitter of this standard deviation (µs).
+    #[arg(long, value_name = "US")]
+    jitter_us: Option<f64>,
+    /// Envelope outputs: a superregenerative receiver's idle chatter between presses.
+    #[arg(long)]
+    chatter: bool,
     /// IQ outputs: add a continuous carrier OFFSET_HZ,AMPLITUDE (repeatable).
     #[arg(long, value_name = "HZ,A", allow_hyphen_values = true)]
     tone: Vec<String>,
@@ -930,6 +942,18 @@ fn synth_cmd(a: SynthArgs) -> i32 {
     }
     if a.invert {
         spec.channel.invert = true;
+    }
+    if a.ac_tau_ms.is_some() {
+        spec.channel.ac_tau_ms = a.ac_tau_ms;
+    }
+    if a.clip.is_some() {
+        spec.channel.clip = a.clip;
+    }
+    if let Some(j) = a.jitter_us {
+        spec.channel.jitter_us = j;
+    }
+    if a.chatter {
+        spec.channel.chatter = true;
     }
     for t in &a.tone {
         let parsed = t

@@ -121,13 +121,11 @@ impl Decoder {
         let decim = WideEnvelope::decimation_for(rate, opts.max_envelope_rate_hz);
         let smooth = (opts.smooth_us * 1e-6 * rate / decim as f64).round() as usize;
         let base = info.is_iq().then_some(0.0);
-        Decoder::with_front(
-            info,
-            opts,
-            Front::Wide(WideEnvelope::with_smoothing(decim, smooth)),
-            rate,
-            base,
-        )
+        let mut wide = WideEnvelope::with_smoothing(decim, smooth);
+        if !info.is_iq() {
+            wide = wide.restoring(rate);
+        }
+        Decoder::with_front(info, opts, Front::Wide(wide), rate, base)
     }
 
     /// A pipeline reading one carrier's channel; `dc` (the receiver's DC offset) is removed
@@ -189,6 +187,11 @@ impl Decoder {
         self.samples += block.len() as u64;
         self.env_block.clear();
         self.env.process(block, &mut self.env_block);
+        self.take_envelope();
+    }
+
+    /// Runs the envelope block through edges and bursts and decodes closed bursts.
+    fn take_envelope(&mut self) {
         self.marks.clear();
         self.edges
             .process(&self.env_block.env, &self.env_block.lag, &mut self.marks);
@@ -363,6 +366,23 @@ impl Decoder {
 
     /// Flushes the stages at the end of the capture and builds the report.
     pub fn finish(mut self) -> DecodeReport {
+        self.env_block.clear();
+        self.env.flush(&mut self.env_block);
+        self.take_envelope();
+        if let Front::Wide(w) = &self.env {
+            if let Some(s) = w.restoration() {
+                if s.inverted {
+                    self.notes
+                        .push("the envelope was inverted; marks read as the low level".into());
+                }
+                if let Some(t) = s.tau_s {
+                    self.notes.push(format!(
+                        "the envelope was AC-coupled; a high-pass of τ ≈ {:.2} ms was undone",
+                        t * 1e3
+                    ));
+                }
+            }
+        }
         self.marks.clear();
         self.edges.finish(&mut self.marks);
         self.route_marks();

@@ -1,14 +1,27 @@
 //! Frames: repeats of one press voted into one code, and presses grouped into codes.
 //!
-//! Within a press the most common frame length wins; frames of that length are voted bit by
-//! bit (a tie keeps the earliest frame's bit) and the bits they had to change are counted as
-//! corrected. Frames of another length are partial (a capture that starts or ends inside a
-//! frame) and never become a code of their own.
+//! Within a press the most common frame length wins; frames of another length are partial (a
+//! capture that starts or ends inside a frame, or a frame noise has broken) and never become a
+//! code of their own.
 //!
-//! A press yields a code when its best line-code score is at least [`MIN_SCORE`], it holds at
-//! least [`MIN_BITS`] bits, and either two frames read exactly the voted code or its single
-//! frame scores at least [`SINGLE_FRAME_SCORE`] and holds at least [`SINGLE_FRAME_BITS`] bits
-//! (noise readily forms one short, plausible frame; it does not repeat one).
+//! **Voting.** The frames of the modal length are voted bit by bit (a tie keeps the earliest
+//! frame's bit). A frame agrees with the vote when it differs from it in at most
+//! [`hamming_limit`] = `max(1, bits / 8)` bits; frames that do not agree are set aside as
+//! damaged (counted with the partial frames) and the agreeing frames are voted again. The bits
+//! the vote changed in the agreeing frames are reported as corrected.
+//!
+//! **Acceptance.** A press yields a code when its best line-code score is at least
+//! [`MIN_SCORE`], it holds at least [`MIN_BITS`] bits, and one of:
+//! - at least two frames read exactly the voted code;
+//! - at least three frames agree with the vote (a true majority exists to correct them) and
+//!   at least one of them reads it exactly;
+//! - the press has a single full-length frame and it is clean by a clear margin: its
+//!   line-code score is at least [`SINGLE_FRAME_SCORE`] and it holds at least
+//!   [`SINGLE_FRAME_BITS`] bits (noise readily forms one short, plausible frame).
+//!
+//! Two frames that differ cannot be settled by a vote, so they are never enough. Finally the
+//! widths must look like a code: the median mark at least [`MIN_MARK_UNITS`] and the median
+//! space inside frames at most [`MAX_SPACE_UNITS`] units (sparse noise spikes fail both).
 
 use crate::bursts::Burst;
 use crate::coding::{self, Layout, LineCode};
@@ -21,6 +34,10 @@ pub const GLITCH_FRACTION: f64 = 0.2;
 pub const MIN_SCORE: f64 = 0.5;
 /// Fewest data bits a code may have.
 pub const MIN_BITS: usize = 4;
+/// Median mark width, in units, below which a press is noise (spikes), not a code.
+pub const MIN_MARK_UNITS: f64 = 0.5;
+/// Median space inside frames, in units, above which a press is noise, not a code.
+pub const MAX_SPACE_UNITS: f64 = 6.0;
 /// Score a press with a single frame needs.
 pub const SINGLE_FRAME_SCORE: f64 = 0.9;
 /// Bits a press with a single frame needs.
@@ -74,6 +91,17 @@ pub struct PressDecode {
     pub noise: f64,
     /// Sum of lag-1 IQ products over the press's marks (zero for envelopes).
     pub lag: Complex64,
+}
+
+/// Bits in which two frames differ (frames of one length).
+pub fn hamming(a: &[bool], b: &[bool]) -> usize {
+    a.iter().zip(b).filter(|(x, y)| x != y).count()
+}
+
+/// Bit errors a frame of `bits` bits may hold and still count as a repeat of the voted code:
+/// `max(1, bits / 8)`.
+pub fn hamming_limit(bits: usize) -> usize {
+    (bits / 8).max(1)
 }
 
 /// Bits as a '0'/'1' string.
@@ -198,25 +226,57 @@ pub fn decode_press_with(burst: &Burst, opts: &PressOptions) -> Option<PressDeco
         }
     }
     let full: Vec<_> = best.frames.iter().filter(|f| f.bits.len() == len).collect();
-    let partial_frames = best.frames.len() - full.len();
-    let mut bits = Vec::with_capacity(len);
-    for k in 0..len {
-        let ones = full.iter().filter(|f| f.bits[k]).count();
-        let zeros = full.len() - ones;
-        bits.push(if ones == zeros {
-            full[0].bits[k]
-        } else {
-            ones > zeros
-        });
-    }
-    let corrected_bits: usize = full
+    let vote = |fs: &[&coding::SlicedFrame]| -> Vec<bool> {
+        (0..len)
+            .map(|k| {
+                let ones = fs.iter().filter(|f| f.bits[k]).count();
+                let zeros = fs.len() - ones;
+                if ones == zeros {
+                    fs[0].bits[k]
+                } else {
+                    ones > zeros
+                }
+            })
+            .collect()
+    };
+    // Vote over every full-length frame, keep the frames within the Hamming limit of that
+    // vote, and vote again over those alone, so a badly damaged frame cannot sway a bit.
+    let limit = hamming_limit(len);
+    let first = vote(&full);
+    let close: Vec<_> = full
         .iter()
-        .map(|f| f.bits.iter().zip(&bits).filter(|(a, b)| a != b).count())
-        .sum();
+        .copied()
+        .filter(|f| hamming(&f.bits, &first) <= limit)
+        .collect();
+    let (bits, full) = if close.is_empty() {
+        (first, full)
+    } else {
+        let v = vote(&close);
+        let again: Vec<_> = close
+            .into_iter()
+            .filter(|f| hamming(&f.bits, &v) <= limit)
+            .collect();
+        (v, again)
+    };
+    let partial_frames = best.frames.len() - full.len();
+    let corrected_bits: usize = full.iter().map(|f| hamming(&f.bits, &bits)).sum();
     let exact = full.iter().filter(|f| f.bits == bits).count();
-    let accepted = exact >= 2
-        || (full.len() == 1 && best.score >= SINGLE_FRAME_SCORE && len >= SINGLE_FRAME_BITS);
+    let single_clean =
+        full.len() == 1 && best.score >= SINGLE_FRAME_SCORE && len >= SINGLE_FRAME_BITS;
+    let accepted = exact >= 2 || (full.len() >= 3 && exact >= 1) || single_clean;
     if !accepted {
+        return None;
+    }
+    // Structure check: a code's marks are about a unit or more and its spaces inside a frame
+    // a few units; sparse noise spikes read as one long "frame" are neither.
+    let (mut mw, mut sw) = (Vec::new(), Vec::new());
+    for f in &full {
+        let ms = &burst.marks[f.first_mark..=f.last_mark];
+        mw.extend(ms.iter().map(|m| m.width()));
+        sw.extend(ms.windows(2).map(|w| w[1].rise - w[0].fall));
+    }
+    let unit = best.unit.max(1e-12);
+    if median(&mw) < MIN_MARK_UNITS * unit || median(&sw) > MAX_SPACE_UNITS * unit {
         return None;
     }
     let marks = &burst.marks;
@@ -328,5 +388,41 @@ mod tests {
         assert_eq!(bit_string(&p.bits), "1100101011110000");
         assert_eq!(p.partial_frames, 1);
         assert_eq!(p.frames.len(), 3);
+    }
+
+    #[test]
+    fn frames_within_the_hamming_limit_are_voted_and_corrected() {
+        // 16 bits: limit 2. Frame 2 has two errors, frame 4 one; all agree with the vote.
+        let bits = "1100101011110000";
+        let mut marks = test_marks::pwm(bits, 100.0, 5);
+        for i in [17 + 2, 17 + 9, 3 * 17 + 5] {
+            if marks[i].width() < 150.0 {
+                marks[i].fall += 200.0;
+            } else {
+                marks[i].fall -= 200.0;
+            }
+        }
+        let p = decode_press(&Burst {
+            marks,
+            capped: false,
+        })
+        .expect("decodes");
+        assert_eq!(bit_string(&p.bits), bits);
+        assert_eq!(p.corrected_bits, 3);
+        assert_eq!(p.frames.len(), 5);
+        assert_eq!(hamming_limit(16), 2);
+        assert_eq!(hamming_limit(4), 1);
+    }
+
+    #[test]
+    fn two_frames_that_differ_are_not_a_code() {
+        let bits = "1100101011110000";
+        let mut marks = test_marks::pwm(bits, 100.0, 2);
+        marks[17 + 2].fall += 200.0;
+        let p = decode_press(&Burst {
+            marks,
+            capped: false,
+        });
+        assert!(p.is_none());
     }
 }

@@ -6,6 +6,7 @@
 //! product `Σ z[n]·conj(z[n-1])` of the IQ samples it integrated, from which the edge stage
 //! measures the carrier offset of every mark (phase advance per sample).
 
+use crate::front::baseline::{Restorer, Setting};
 use crate::front::channel::{ChannelPlan, Channelizer};
 use crate::front::FrontError;
 use crate::source::Samples;
@@ -186,6 +187,13 @@ impl Front {
         }
     }
 
+    /// Releases samples a stage still holds (end of the capture).
+    pub fn flush(&mut self, out: &mut EnvelopeBlock) {
+        if let Front::Wide(w) = self {
+            w.flush(out);
+        }
+    }
+
     /// Capture samples per envelope sample.
     pub fn decim(&self) -> f64 {
         match self {
@@ -202,6 +210,9 @@ impl Front {
 #[derive(Debug, Clone)]
 pub struct WideEnvelope {
     decim: usize,
+    /// Polarity and AC-coupling restoration of recorded envelopes (see [`Restorer`]).
+    restorer: Option<Box<Restorer>>,
+    restored: Vec<f32>,
     smoother: Smoother,
     acc: f64,
     acc_lag: Complex64,
@@ -224,11 +235,50 @@ impl WideEnvelope {
     pub fn with_smoothing(decim: usize, smooth: usize) -> WideEnvelope {
         WideEnvelope {
             decim: decim.max(1),
+            restorer: None,
+            restored: Vec::new(),
             smoother: Smoother::new(smooth),
             acc: 0.0,
             acc_lag: Complex64::new(0.0, 0.0),
             n: 0,
             prev: Complex32::new(0.0, 0.0),
+        }
+    }
+
+    /// Restores polarity and AC coupling of envelope input at `rate_hz` (module
+    /// [`baseline`](crate::front::baseline)); IQ input is not affected.
+    pub fn restoring(mut self, rate_hz: f64) -> WideEnvelope {
+        self.restorer = Some(Box::new(Restorer::new(rate_hz)));
+        self
+    }
+
+    /// The restorer's finding, when restoring and a window was decisive.
+    pub fn restoration(&self) -> Option<Setting> {
+        self.restorer.as_ref().and_then(|r| r.setting())
+    }
+
+    /// Releases envelope samples the restorer still holds (end of the capture).
+    pub fn flush(&mut self, out: &mut EnvelopeBlock) {
+        if let Some(r) = &mut self.restorer {
+            let mut held = std::mem::take(&mut self.restored);
+            held.clear();
+            r.flush(&mut held);
+            self.integrate(&held, out);
+            self.restored = held;
+        }
+    }
+
+    fn integrate(&mut self, env: &[f32], out: &mut EnvelopeBlock) {
+        let d = self.decim;
+        let scale = 1.0 / d as f64;
+        for &x in env {
+            self.acc += x as f64;
+            self.n += 1;
+            if self.n == d {
+                self.smoother.push((self.acc * scale) as f32, None, out);
+                self.acc = 0.0;
+                self.n = 0;
+            }
         }
     }
 
@@ -250,7 +300,12 @@ impl WideEnvelope {
 
     /// Forgets all state, as at the start of a capture.
     pub fn reset(&mut self) {
+        let restorer = self
+            .restorer
+            .as_ref()
+            .map(|r| Box::new(Restorer::new(r.rate_hz())));
         *self = WideEnvelope::with_smoothing(self.decim, self.smoother.len());
+        self.restorer = restorer;
     }
 
     /// Appends the envelope of `block` to `out`.
@@ -274,17 +329,16 @@ impl WideEnvelope {
                     }
                 }
             }
-            Samples::Envelope(env) => {
-                for &x in env {
-                    self.acc += x as f64;
-                    self.n += 1;
-                    if self.n == d {
-                        self.smoother.push((self.acc * scale) as f32, None, out);
-                        self.acc = 0.0;
-                        self.n = 0;
-                    }
+            Samples::Envelope(env) => match &mut self.restorer {
+                Some(r) => {
+                    let mut held = std::mem::take(&mut self.restored);
+                    held.clear();
+                    r.push(env, &mut held);
+                    self.integrate(&held, out);
+                    self.restored = held;
                 }
-            }
+                None => self.integrate(env, out),
+            },
         }
     }
 }

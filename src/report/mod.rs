@@ -167,6 +167,56 @@ pub struct CodeReport {
     pub framing: Framing,
     /// Every press and frame with its marks (what `budget` works from).
     pub timeline: Vec<PressTimeline>,
+    /// PWM codes whose bits pair up as 00, 11 and 01 (never 10): the code as tri-state
+    /// symbols, `0`, `1` and `F` per pair (see [`tristate`]); null otherwise.
+    #[serde(default)]
+    pub tristate: Option<String>,
+    /// Evidence: mark and space widths of the reported frames, clustered, in units.
+    #[serde(default)]
+    pub clusters: WidthClusters,
+}
+
+/// One group of similar widths, in units of `unit_us`.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq, Default)]
+pub struct WidthCluster {
+    /// Mean width in units.
+    pub units: f64,
+    /// Widths in the group.
+    pub count: usize,
+}
+
+/// Mark and space widths inside the frames (gaps between repeats excluded), clustered with
+/// 25 % gaps ([`crate::timing::clusters`]), narrowest first.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq, Default)]
+pub struct WidthClusters {
+    /// Mark widths.
+    pub marks: Vec<WidthCluster>,
+    /// Space widths between marks of one frame.
+    pub spaces: Vec<WidthCluster>,
+}
+
+/// The tri-state view of a PWM code: bits taken in pairs, `00` → `0`, `11` → `1`, `01` → `F`;
+/// `None` when the code is not PWM, has an odd bit count, or holds a `10` pair.
+///
+/// ```
+/// use ooksift::report::tristate;
+/// assert_eq!(tristate("pwm", "001101"), Some("01F".to_string()));
+/// assert_eq!(tristate("pwm", "0010"), None);
+/// assert_eq!(tristate("ppm", "0011"), None);
+/// ```
+pub fn tristate(line_code: &str, bits: &str) -> Option<String> {
+    if line_code != "pwm" || bits.is_empty() || bits.len() % 2 != 0 {
+        return None;
+    }
+    bits.as_bytes()
+        .chunks(2)
+        .map(|p| match p {
+            b"00" => Some('0'),
+            b"11" => Some('1'),
+            b"01" => Some('F'),
+            _ => None,
+        })
+        .collect()
 }
 
 impl CodeReport {
@@ -243,7 +293,31 @@ impl CodeReport {
                     .collect(),
             })
             .collect();
+        let (mut mark_w, mut space_w) = (Vec::new(), Vec::new());
+        for f in &all_frames {
+            mark_w.extend(f.marks.iter().map(|&(r, fa)| (fa - r) / unit.max(1e-12)));
+            space_w.extend(
+                f.marks
+                    .windows(2)
+                    .map(|w| (w[1].0 - w[0].1) / unit.max(1e-12)),
+            );
+        }
+        let group = |w: &[f64]| -> Vec<WidthCluster> {
+            crate::timing::clusters(w, 0.25)
+                .iter()
+                .map(|c| WidthCluster {
+                    units: round_to(c.mean, 2),
+                    count: c.count,
+                })
+                .collect()
+        };
+        let clusters = WidthClusters {
+            marks: group(&mark_w),
+            spaces: group(&space_w),
+        };
         CodeReport {
+            tristate: tristate(&line_code, &bits),
+            clusters,
             key_id: key_id(&line_code, &bits),
             hex: hex_of(&bits),
             bit_count: bits.len(),

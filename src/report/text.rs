@@ -89,6 +89,21 @@ pub fn render_text(r: &DecodeReport) -> String {
                 parts.push("no header, closing mark or repeats".into());
             }
             let _ = writeln!(s, "  framing   {}", parts.join(", "));
+            if let Some(t) = &k.tristate {
+                let _ = writeln!(s, "  tristate  {t}");
+            }
+            let list = |cs: &[super::WidthCluster]| {
+                cs.iter()
+                    .map(|c| format!("{:.2}u ×{}", c.units, c.count))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            };
+            let _ = writeln!(
+                s,
+                "  widths    marks {}; spaces {}",
+                list(&k.clusters.marks),
+                list(&k.clusters.spaces)
+            );
             let runner = k.runner_up.as_ref().map_or_else(
                 || "no other line code fits".to_string(),
                 |ru| format!("runner-up {} {:.2}", ru.line_code, ru.score),

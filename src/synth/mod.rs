@@ -22,7 +22,7 @@
 mod spec;
 mod write;
 
-pub use spec::{parse_press, ChannelSpec, PressSpec, SynthSpec};
+pub use spec::{parse_press, ChannelSpec, PressSpec, SynthSpec, CHATTER_GUARD_MS};
 pub use write::{truth_path, write_capture, TruthCapture, TruthCode, TruthFile};
 
 /// Errors of the synth layer.

@@ -71,7 +71,21 @@ pub struct ChannelSpec {
     pub invert: bool,
     /// IQ outputs: continuous carriers (interferers) as [offset_hz, amplitude] pairs.
     pub tones: Vec<[f64; 2]>,
+    /// Envelope outputs: AC coupling as a sound card input has it, a single-pole high-pass
+    /// of this time constant in ms (droop on long marks, undershoot after); `None` for DC.
+    pub ac_tau_ms: Option<f64>,
+    /// Envelope outputs: samples clipped to ±`clip` (full scale 1) after everything else.
+    pub clip: Option<f64>,
+    /// Every edge displaced by Gaussian jitter of this standard deviation, µs.
+    pub jitter_us: f64,
+    /// Envelope outputs: a superregenerative receiver's idle chatter in the silences between
+    /// presses (random marks and spaces at full level, widths log-uniform in 30 µs–1.5 ms),
+    /// stopping [`CHATTER_GUARD_MS`] before each press and resuming as long after it.
+    pub chatter: bool,
 }
+
+/// Quiet time kept between chatter and a press, ms.
+pub const CHATTER_GUARD_MS: f64 = 5.0;
 
 impl Default for ChannelSpec {
     fn default() -> Self {
@@ -84,6 +98,10 @@ impl Default for ChannelSpec {
             stretch_us: 0.0,
             invert: false,
             tones: Vec::new(),
+            ac_tau_ms: None,
+            clip: None,
+            jitter_us: 0.0,
+            chatter: false,
         }
     }
 }
@@ -114,6 +132,9 @@ pub struct PressSpec {
     pub phase: Option<f64>,
     /// Encoder clock error: every duration scaled by `1 + clock_error`.
     pub clock_error: f64,
+    /// Encoder clock drift across the press: the unit scales linearly from `1` at the press
+    /// start to `1 + drift` at its end (on top of `clock_error`).
+    pub drift: f64,
     /// Units of mark and space for a 0 bit (default PWM 1/3, PPM 1/1).
     pub zero: Option<[f64; 2]>,
     /// Units of mark and space for a 1 bit (default PWM 3/1, PPM 1/3).
@@ -143,6 +164,7 @@ impl Default for PressSpec {
             carrier_offset_hz: 0.0,
             phase: None,
             clock_error: 0.0,
+            drift: 0.0,
             zero: None,
             one: None,
             header: None,
@@ -214,6 +236,9 @@ impl PressSpec {
         }
         if self.clock_error.is_nan() || self.clock_error.abs() >= 0.5 {
             return Err(SynthError::Spec("clock_error must be within ±0.5".into()));
+        }
+        if self.drift.is_nan() || self.drift.abs() >= 0.5 {
+            return Err(SynthError::Spec("drift must be within ±0.5".into()));
         }
         let (zero, one, header, gap) = match line_code {
             LineCode::Pwm => ([1.0, 3.0], [3.0, 1.0], None, 31.0),
@@ -312,8 +337,8 @@ impl Layout {
 /// Parses a press given on the command line: `LINECODE:BITS[,key=value...]`.
 ///
 /// Keys: `unit_us`, `repeats`, `gap_ms` (silence before the press), `at_ms` (absolute
-/// start), `offset_hz`, `drift_hz`, `phase`,
-/// `clock_error`, `zero=M/S`, `one=M/S`, `header=M/S`, `closing=U`, `gap_units=U`, and for
+/// start), `offset_hz`, `drift_hz` (carrier), `phase`, `clock_error`, `drift` (unit),
+/// `zero=M/S`, `one=M/S`, `header=M/S`, `closing=U`, `gap_units=U`, and for
 /// NRZ `preamble=N` (alternating bits) and `sync=BITS`.
 ///
 /// ```
@@ -359,6 +384,7 @@ pub fn parse_press(text: &str) -> Result<PressSpec, SynthError> {
             "offset_hz" => p.carrier_offset_hz = num(k, v)?,
             "phase" => p.phase = Some(num(k, v)?),
             "clock_error" => p.clock_error = num(k, v)?,
+            "drift" => p.drift = num(k, v)?,
             "zero" => p.zero = Some(pair(k, v)?),
             "one" => p.one = Some(pair(k, v)?),
             "header" => p.header = Some(pair(k, v)?),

@@ -1,6 +1,6 @@
 //! Rendering a [`SynthSpec`] to a capture file and writing its truth sidecar.
 
-use super::spec::{Layout, SynthSpec};
+use super::spec::{Layout, SynthSpec, CHATTER_GUARD_MS};
 use super::SynthError;
 use crate::frames::{hex_of, key_id};
 use crate::output::{AtomicFile, OutputError};
@@ -109,10 +109,57 @@ struct PressPlan {
     layout: Layout,
     offset_hz: f64,
     drift_hz: f64,
+    drift: f64,
     frames: Vec<Vec<(f64, f64)>>,
 }
 
-fn plan(spec: &SynthSpec, rng: &mut Rng) -> Result<(Vec<PressPlan>, Vec<TxMark>, f64), SynthError> {
+/// Superregenerative idle chatter: random marks and spaces, widths log-uniform in
+/// 30 µs–1.5 ms, filling every silence but a guard of [`CHATTER_GUARD_MS`] around presses.
+fn add_chatter(presses: &[PressPlan], duration: f64, rng: &mut Rng, marks: &mut Vec<TxMark>) {
+    let guard = CHATTER_GUARD_MS * 1e-3;
+    let mut quiet: Vec<(f64, f64)> = Vec::new();
+    let mut from = 0.0;
+    for p in presses {
+        let start = p
+            .frames
+            .first()
+            .and_then(|f| f.first())
+            .map_or(from, |m| m.0);
+        let end = p
+            .frames
+            .last()
+            .and_then(|f| f.last())
+            .map_or(start, |m| m.1);
+        quiet.push((from, start - guard));
+        from = end + guard;
+    }
+    quiet.push((from, duration));
+    let width = |rng: &mut Rng| 30e-6 * (50.0f64).powf(rng.uniform());
+    for (a, b) in quiet {
+        let mut t = a + width(rng);
+        loop {
+            let w = width(rng);
+            if t + w > b {
+                break;
+            }
+            marks.push(TxMark {
+                rise: t,
+                fall: t + w,
+                offset_hz: 0.0,
+                phase: 0.0,
+                drift_rate: 0.0,
+                t0: 0.0,
+            });
+            t += w + width(rng);
+        }
+    }
+}
+
+fn plan(
+    spec: &SynthSpec,
+    iq: bool,
+    rng: &mut Rng,
+) -> Result<(Vec<PressPlan>, Vec<TxMark>, f64), SynthError> {
     let mut t = spec.lead_ms * 1e-3;
     let mut presses = Vec::new();
     let mut marks = Vec::new();
@@ -135,11 +182,26 @@ fn plan(spec: &SynthSpec, rng: &mut Rng) -> Result<(Vec<PressPlan>, Vec<TxMark>,
         let span = (p.repeats.max(1) - 1) as f64 * period + frame.last().map_or(0.0, |m| m.1);
         let drift_rate = if span > 0.0 { p.drift_hz / span } else { 0.0 };
         let t0 = t;
+        // Drift: the unit grows linearly by `drift` over the press's nominal length `len`,
+        // so nominal time `x` from the press start lands at `x + drift·x²/(2·len)`.
+        let len = frame.last().map_or(0.0, |m| m.1) + (p.repeats - 1) as f64 * period;
+        let warp = |x: f64| x + p.drift * x * x / (2.0 * len.max(1e-12));
+        let jitter = spec.channel.jitter_us.abs() * 1e-6;
         let mut frames = Vec::new();
         let mut end = t;
         for k in 0..p.repeats {
-            let s = t + k as f64 * period;
-            let f: Vec<(f64, f64)> = frame.iter().map(|&(r, fa)| (s + r, s + fa)).collect();
+            let s = k as f64 * period;
+            let mut f: Vec<(f64, f64)> = frame
+                .iter()
+                .map(|&(r, fa)| (t + warp(s + r), t + warp(s + fa)))
+                .collect();
+            if jitter > 0.0 {
+                for m in &mut f {
+                    let r = m.0 + jitter * rng.gauss();
+                    let fa = m.1 + jitter * rng.gauss();
+                    *m = (r, fa.max(r + 1e-9));
+                }
+            }
             end = f.last().map_or(end, |m| m.1);
             for &(r, fa) in &f {
                 marks.push(TxMark {
@@ -157,6 +219,7 @@ fn plan(spec: &SynthSpec, rng: &mut Rng) -> Result<(Vec<PressPlan>, Vec<TxMark>,
             layout,
             offset_hz: p.carrier_offset_hz,
             drift_hz: p.drift_hz,
+            drift: p.drift,
             frames,
         });
         t = t.max(end);
@@ -166,6 +229,9 @@ fn plan(spec: &SynthSpec, rng: &mut Rng) -> Result<(Vec<PressPlan>, Vec<TxMark>,
         return Err(SynthError::Spec(
             "nothing to write: give presses or min_duration_ms".into(),
         ));
+    }
+    if spec.channel.chatter && !iq {
+        add_chatter(&presses, duration, rng, &mut marks);
     }
     Ok((presses, marks, duration))
 }
@@ -204,7 +270,8 @@ fn truth_codes(presses: &[PressPlan], iq: bool) -> Vec<TruthCode> {
                 key_id: key_id(&lc, &bits),
                 hex: hex_of(&bits),
                 bit_count: bits.len(),
-                unit_us: round_to(first.layout.unit_s * 1e6, 6),
+                // With drift, the unit the press averages.
+                unit_us: round_to(first.layout.unit_s * (1.0 + first.drift / 2.0) * 1e6, 6),
                 // A drifting carrier is reported at its mean offset over the press.
                 carrier_offset_hz: iq.then_some(first.offset_hz + 0.5 * first.drift_hz),
                 presses: ps.len(),
@@ -322,7 +389,7 @@ pub fn write_capture(spec: &SynthSpec, out: &Path, force: bool) -> Result<TruthF
         Kind::Wav { iq, .. } => *iq,
     };
     let mut rng = Rng::new(spec.seed);
-    let (presses, mut marks, duration) = plan(spec, &mut rng)?;
+    let (presses, mut marks, duration) = plan(spec, iq, &mut rng)?;
     marks.sort_by(|a, b| a.rise.total_cmp(&b.rise));
     let n_total = (duration * fs_hz).ceil() as u64;
     let ch = &spec.channel;
@@ -379,6 +446,17 @@ pub fn write_capture(spec: &SynthSpec, out: &Path, force: bool) -> Result<TruthF
         let h = wav_header(iq, bits, fs_hz.round() as u32, n_total)?;
         file.write_all(&h).map_err(io(&data_path))?;
     }
+    let hp_alpha = ch
+        .ac_tau_ms
+        .filter(|&t| t > 0.0)
+        .map(|t| t * 1e-3 / (t * 1e-3 + 1.0 / fs_hz));
+    // (last input, last output): starts settled on the idle level.
+    let idle0 = if ch.invert {
+        -ch.idle_level
+    } else {
+        ch.idle_level
+    };
+    let mut hp = (idle0, 0.0f64);
     let block = 1usize << 16;
     let mut comps: Vec<f32> = Vec::with_capacity(2 * block);
     let mut bytes: Vec<u8> = Vec::with_capacity(16 * block);
@@ -419,7 +497,17 @@ pub fn write_capture(spec: &SynthSpec, out: &Path, force: bool) -> Result<TruthF
                 comps.push((im + ch.dc[1] + sigma * rng.gauss()) as f32);
             } else {
                 let y = ch.idle_level + a * env.min(1.0) + sigma * rng.gauss();
-                comps.push(if ch.invert { -y } else { y } as f32);
+                let mut y = if ch.invert { -y } else { y };
+                if let Some(alpha) = hp_alpha {
+                    // Single-pole high-pass: out[n] = α·(out[n-1] + in[n] - in[n-1]).
+                    let o = alpha * (hp.1 + y - hp.0);
+                    hp = (y, o);
+                    y = o;
+                }
+                if let Some(c) = ch.clip {
+                    y = y.clamp(-c.abs(), c.abs());
+                }
+                comps.push(y as f32);
             }
         }
         bytes.clear();
