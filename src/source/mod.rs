@@ -22,7 +22,7 @@ mod wav;
 
 pub use datatype::{Component, Datatype, UnknownDatatype};
 pub use raw::RawSource;
-pub use sigmf::SigmfSource;
+pub use sigmf::{SigmfMeta, SigmfSource};
 pub use wav::WavSource;
 
 use crate::units::Rate;
@@ -246,7 +246,6 @@ fn sniff(mut r: Box<dyn Read>) -> Result<(Vec<u8>, Box<dyn Read>)> {
 /// `.sigmf-data`, or an extension equal to a datatype such as `.cu8` or `.cf32_le`), else from
 /// the content (a RIFF header means WAV).
 pub fn open(path: &str, opts: &OpenOptions) -> Result<Box<dyn SampleSource>> {
-    let block = opts.block_samples.max(1);
     let chosen = match &opts.format {
         Some(f) => Some(choose_by_name(f)?),
         None if path == "-" => None,
@@ -270,6 +269,52 @@ pub fn open(path: &str, opts: &OpenOptions) -> Result<Box<dyn SampleSource>> {
     if file_len == Some(0) {
         return Err(SourceError::Empty);
     }
+    open_reader(path, reader, file_len, chosen, opts)
+}
+
+/// Builds a source over any byte stream (a pipe, a socket, bytes in memory): the same
+/// readers as [`open`], without a file behind them. `label` names the input in the
+/// [`CaptureInfo`]. The format comes from `opts.format` (a datatype name or `wav`), else from
+/// the content (a RIFF header means WAV); SigMF needs its metadata file and is refused.
+///
+/// ```
+/// use ooksift::source::{from_reader, OpenOptions};
+/// let bytes: Vec<u8> = vec![128; 4000]; // 2000 idle cu8 samples
+/// let opts = OpenOptions { format: Some("cu8".into()), rate_hz: Some(1e6), ..OpenOptions::default() };
+/// let mut src = from_reader("memory", Box::new(std::io::Cursor::new(bytes)), &opts).unwrap();
+/// assert_eq!(src.info().rate.hz(), 1e6);
+/// let mut n = 0;
+/// while let Some(block) = src.next_block().unwrap() {
+///     n += block.len();
+/// }
+/// assert_eq!(n, 2000);
+/// ```
+pub fn from_reader(
+    label: &str,
+    reader: Box<dyn Read>,
+    opts: &OpenOptions,
+) -> Result<Box<dyn SampleSource>> {
+    let chosen = match &opts.format {
+        Some(f) => Some(choose_by_name(f)?),
+        None => None,
+    };
+    if chosen == Some(Chosen::Sigmf) {
+        return Err(SourceError::Sigmf(
+            "SigMF needs its .sigmf-meta file; it cannot come from a stream".into(),
+        ));
+    }
+    open_reader(label, reader, None, chosen, opts)
+}
+
+/// The readers behind [`open`] and [`from_reader`]; `file_len` is the size when known.
+fn open_reader(
+    path: &str,
+    reader: Box<dyn Read>,
+    file_len: Option<u64>,
+    chosen: Option<Chosen>,
+    opts: &OpenOptions,
+) -> Result<Box<dyn SampleSource>> {
+    let block = opts.block_samples.max(1);
     let (head, reader) = sniff(reader)?;
     if head.is_empty() {
         return Err(SourceError::Empty);
