@@ -57,8 +57,8 @@ pub enum SourceError {
     /// A raw capture with no sample rate.
     #[error("no sample rate: raw captures need --rate HZ")]
     MissingRate,
-    /// A sample rate outside (0, 1e12] Hz.
-    #[error("absurd sample rate {0} Hz")]
+    /// A sample rate outside [1, 1e12] Hz.
+    #[error("absurd sample rate {} Hz (expected 1 Hz to 1 THz)", show_hz(*.0))]
     BadRate(f64),
     /// A float sample that is NaN or infinite.
     #[error("sample {index} is not a finite number ({value})")]
@@ -81,6 +81,16 @@ pub enum SourceError {
         path: String,
         source: std::io::Error,
     },
+}
+
+/// A rate for a message: plain digits for ordinary values, exponent form for absurd ones (so
+/// `1e300` does not print as 301 digits).
+fn show_hz(hz: f64) -> String {
+    if hz == 0.0 || (hz.abs() >= 1e-3 && hz.abs() < 1e15) || !hz.is_finite() {
+        format!("{hz}")
+    } else {
+        format!("{hz:e}")
+    }
 }
 
 /// A `Result` of the source layer.
@@ -367,5 +377,27 @@ mod tests {
         assert_eq!(choose_by_path("rec.sigmf-data"), Some(Chosen::Sigmf));
         assert_eq!(choose_by_path("x.bin"), None);
         assert!(choose_by_name("cu8_le").is_err());
+    }
+
+    #[test]
+    fn absurd_rates_print_briefly() {
+        let msg = |hz: f64| SourceError::BadRate(hz).to_string();
+        assert_eq!(
+            msg(1e300),
+            "absurd sample rate 1e300 Hz (expected 1 Hz to 1 THz)"
+        );
+        assert_eq!(
+            msg(-1e-300),
+            "absurd sample rate -1e-300 Hz (expected 1 Hz to 1 THz)"
+        );
+        assert_eq!(
+            msg(0.5),
+            "absurd sample rate 0.5 Hz (expected 1 Hz to 1 THz)"
+        );
+        assert_eq!(msg(0.0), "absurd sample rate 0 Hz (expected 1 Hz to 1 THz)");
+        assert_eq!(
+            msg(f64::NAN),
+            "absurd sample rate NaN Hz (expected 1 Hz to 1 THz)"
+        );
     }
 }
