@@ -60,8 +60,11 @@ pub enum SourceError {
     /// A sample rate outside [1, 1e12] Hz.
     #[error("absurd sample rate {} Hz (expected 1 Hz to 1 THz)", show_hz(*.0))]
     BadRate(f64),
-    /// A float sample that is NaN or infinite.
-    #[error("sample {index} is not a finite number ({value})")]
+    /// A float sample that is NaN or infinite, or a 64-bit float beyond the 32-bit range the
+    /// pipeline works in (`value` is then the infinity it became).
+    #[error(
+        "sample {index} is not a finite number within the 32-bit float range (read as {value})"
+    )]
     NonFinite { index: u64, value: f32 },
     /// WAV container problems reported by the WAV reader.
     #[error("bad WAV: {0}")]
