@@ -104,7 +104,7 @@ impl WavSource {
             }
         }
         if declared_values == 0 {
-            return Err(SourceError::Empty);
+            return Err(SourceError::Wav("the data chunk holds no samples".into()));
         }
         let info = CaptureInfo {
             path: path.to_string(),
@@ -263,5 +263,14 @@ mod tests {
             let err = read_all(bytes[..cut].to_vec()).expect_err("short header");
             assert!(err.to_string().contains("the header ends"), "{cut}: {err}");
         }
+    }
+
+    #[test]
+    fn an_empty_data_chunk_is_not_called_an_empty_file() {
+        let err = read_all(wav_bytes(&[], None)).expect_err("no samples");
+        assert!(
+            err.to_string().contains("data chunk holds no samples"),
+            "{err}"
+        );
     }
 }
