@@ -234,7 +234,7 @@ fn rate_of(meta: &SigmfMeta, opts: &OpenOptions) -> Result<Rate> {
     let hz = opts
         .rate_hz
         .or(meta.sample_rate_hz)
-        .ok_or(SourceError::MissingRate)?;
+        .ok_or_else(|| bad("no global.core:sample_rate; give --rate HZ"))?;
     Rate::new(hz).ok_or(SourceError::BadRate(hz))
 }
 
@@ -265,5 +265,52 @@ impl SampleSource for SigmfSource {
 
     fn next_block(&mut self) -> Result<Option<Samples<'_>>> {
         self.inner.next_block()
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::io::Cursor;
+
+    fn meta(text: &str) -> SigmfMeta {
+        SigmfMeta::parse(text.as_bytes()).expect("valid metadata")
+    }
+
+    fn source(m: &SigmfMeta, rate_hz: Option<f64>, data: Vec<u8>) -> Result<SigmfSource> {
+        let opts = OpenOptions {
+            rate_hz,
+            ..OpenOptions::default()
+        };
+        let len = data.len() as u64;
+        SigmfSource::from_reader("rec", m, &opts, Box::new(Cursor::new(data)), len)
+    }
+
+    #[test]
+    fn a_missing_sample_rate_names_the_metadata_field() {
+        // Regression: the message spoke of raw captures.
+        let m = meta(r#"{"global": {"core:datatype": "cu8", "core:version": "1.2.0"}}"#);
+        let err = source(&m, None, vec![128; 100]).err().expect("no rate");
+        assert!(err.to_string().contains("global.core:sample_rate"), "{err}");
+        assert!(source(&m, Some(1e6), vec![128; 100]).is_ok());
+    }
+
+    #[test]
+    fn header_bytes_are_skipped_and_the_rest_is_read() {
+        let m = meta(
+            r#"{"global": {"core:datatype": "ri16_le", "core:version": "1.2.0",
+                "core:sample_rate": 1000}, "captures": [{"core:header_bytes": 3}]}"#,
+        );
+        let mut data = vec![9, 9, 9];
+        data.extend_from_slice(&16384i16.to_le_bytes());
+        data.extend_from_slice(&(-16384i16).to_le_bytes());
+        let mut src = source(&m, None, data).expect("opens");
+        let mut got = Vec::new();
+        while let Some(b) = src.next_block().expect("reads") {
+            if let Samples::Envelope(e) = b {
+                got.extend_from_slice(e);
+            }
+        }
+        assert_eq!(got, vec![0.5, -0.5]);
     }
 }
