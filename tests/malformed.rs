@@ -4,16 +4,13 @@
 //! DESIGN.md fixes the contract: a file that cannot be analysed gives exit status 1 and one
 //! line `ooksift: PATH: message` on stderr; a file that can be analysed gives exit 0, and for
 //! these files "no code found". Never a panic, never a hang: each run has a deadline
-//! ([`DEADLINE`]); that is a bound against hangs, not a speed test.
+//! (`spawn::DEADLINE`); that is a bound against hangs, not a speed test.
 
+mod spawn;
+
+use spawn::{panicked, run};
 use std::collections::BTreeSet;
-use std::io::Read;
 use std::path::{Path, PathBuf};
-use std::process::{Command, Stdio};
-use std::time::{Duration, Instant};
-
-const BIN: &str = env!("CARGO_BIN_EXE_ooksift");
-const DEADLINE: Duration = Duration::from_secs(10);
 
 /// What a file must produce.
 #[derive(Debug, Clone, Copy)]
@@ -124,53 +121,6 @@ fn corpus() -> PathBuf {
     Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/malformed")
 }
 
-struct Run {
-    status: i32,
-    stdout: String,
-    stderr: String,
-}
-
-/// Runs the binary with a deadline; a hang kills it and fails the test.
-fn run(args: &[&str]) -> Run {
-    let mut child = Command::new(BIN)
-        .args(args)
-        .stdin(Stdio::null())
-        .stdout(Stdio::piped())
-        .stderr(Stdio::piped())
-        .spawn()
-        .expect("spawn ooksift");
-    let mut out = child.stdout.take().expect("stdout");
-    let mut err = child.stderr.take().expect("stderr");
-    let t_out = std::thread::spawn(move || {
-        let mut s = Vec::new();
-        let _ = out.read_to_end(&mut s);
-        s
-    });
-    let t_err = std::thread::spawn(move || {
-        let mut s = Vec::new();
-        let _ = err.read_to_end(&mut s);
-        s
-    });
-    let start = Instant::now();
-    let status = loop {
-        if let Some(st) = child.try_wait().expect("wait") {
-            break st;
-        }
-        if start.elapsed() > DEADLINE {
-            let _ = child.kill();
-            let _ = child.wait();
-            panic!("ooksift {args:?} still running after {DEADLINE:?}");
-        }
-        std::thread::sleep(Duration::from_millis(5));
-    };
-    Run {
-        // A signal (no code) counts as a failure of its own.
-        status: status.code().unwrap_or(-1),
-        stdout: String::from_utf8_lossy(&t_out.join().expect("stdout reader")).into_owned(),
-        stderr: String::from_utf8_lossy(&t_err.join().expect("stderr reader")).into_owned(),
-    }
-}
-
 fn check(file: &str, extra: &[&str], expect: Expect) -> Result<(), String> {
     let path = corpus().join(file);
     let path_s = path.to_str().expect("utf-8 path").to_string();
@@ -183,7 +133,7 @@ fn check(file: &str, extra: &[&str], expect: Expect) -> Result<(), String> {
         }
         let r = run(&args);
         let what = format!("{file} {extra:?} json={json}");
-        if r.stderr.contains("panicked") || r.stderr.contains("RUST_BACKTRACE") {
+        if panicked(&r.stderr) {
             failures.push(format!("{what}: panic text on stderr: {}", r.stderr));
             continue;
         }
@@ -191,9 +141,9 @@ fn check(file: &str, extra: &[&str], expect: Expect) -> Result<(), String> {
             Error(text) => {
                 let lines: Vec<&str> = r.stderr.lines().collect();
                 let prefix = format!("ooksift: {path_s}: ");
-                if r.status != 1 {
+                if r.status != Some(1) {
                     failures.push(format!(
-                        "{what}: exit {} (want 1); stderr {:?}",
+                        "{what}: exit {:?} (want 1); stderr {:?}",
                         r.status, r.stderr
                     ));
                 } else if lines.len() != 1 {
@@ -216,9 +166,9 @@ fn check(file: &str, extra: &[&str], expect: Expect) -> Result<(), String> {
                 }
             }
             NoCode => {
-                if r.status != 0 {
+                if r.status != Some(0) {
                     failures.push(format!(
-                        "{what}: exit {} (want 0); stderr {:?}",
+                        "{what}: exit {:?} (want 0); stderr {:?}",
                         r.status, r.stderr
                     ));
                 } else if json {
