@@ -171,7 +171,7 @@ fn stdin_errors_are_one_line() {
 /// writer is still writing when the reader goes away.
 fn many_reports(cap: &str) -> Vec<String> {
     let mut args = vec!["decode".to_string()];
-    args.extend(std::iter::repeat(cap.to_string()).take(30));
+    args.extend((0..30).map(|_| cap.to_string()));
     args.extend(["--rate", "1000000", "--json"].map(String::from));
     args
 }
@@ -280,4 +280,85 @@ fn a_closed_stderr_does_not_turn_a_message_into_a_crash() {
         assert_eq!(st.code(), Some(want), "{args:?}");
     }
     assert!(out.exists());
+}
+
+#[test]
+fn a_long_noisy_stream_reports_each_press_as_it_ends() {
+    // Regression: false marks in the noise between presses chained the whole stream into one
+    // burst, so nothing was reported before the stream ended, and past the burst's mark limit
+    // (20 000 marks, about 90 presses) every later press was dropped.
+    use ooksift::decode::{DecodeOptions, Decoder};
+    use ooksift::source::{from_reader, OpenOptions};
+
+    let dir = tempfile::tempdir().expect("tempdir");
+    let cap = dir.path().join("gate-then-chime.cu8");
+    let r = run(&[
+        "synth",
+        "--out",
+        cap.to_str().expect("utf-8"),
+        "--rate",
+        "250000",
+        "--lead-ms",
+        "2000",
+        "--tail-ms",
+        "3000",
+        "--press",
+        "pwm:0x5a5a5a",
+        "--press",
+        "ppm:0x3c3c3c,gap_ms=2000",
+    ]);
+    assert_eq!(r.status, Some(0), "{}", r.stderr);
+    let one = std::fs::read(&cap).expect("capture");
+    let copies = 4;
+    let stream: Vec<u8> = one
+        .iter()
+        .copied()
+        .cycle()
+        .take(one.len() * copies)
+        .collect();
+    let opts = DecodeOptions {
+        open: OpenOptions {
+            format: Some("cu8".into()),
+            rate_hz: Some(250_000.0),
+            ..OpenOptions::default()
+        },
+        ..DecodeOptions::default()
+    };
+    let mut src =
+        from_reader("-", Box::new(std::io::Cursor::new(stream)), &opts.open).expect("opens");
+    let mut dec = Decoder::new(src.info().clone(), &opts);
+    let mut read = 0usize;
+    let mut seen_at = Vec::new();
+    while let Some(block) = src.next_block().expect("reads") {
+        read += block.len();
+        dec.push(block);
+        while seen_at.len() < dec.presses().len() {
+            seen_at.push(read);
+        }
+    }
+    // Both presses of every copy were out before the copy after it began.
+    let per_copy = one.len() / 2;
+    assert_eq!(
+        seen_at.len(),
+        2 * copies,
+        "presses reported while streaming: {seen_at:?}"
+    );
+    for (k, at) in seen_at.iter().enumerate() {
+        assert!(
+            *at <= (k / 2 + 1) * per_copy,
+            "press {k} reported at sample {at}"
+        );
+    }
+    let report = dec.finish();
+    let codes: Vec<(&str, usize)> = report
+        .codes
+        .iter()
+        .map(|c| (c.hex.as_str(), c.presses))
+        .collect();
+    assert_eq!(
+        codes,
+        [("5a5a5a", copies), ("3c3c3c", copies)],
+        "{:?}",
+        report.notes
+    );
 }
