@@ -36,7 +36,7 @@ fn synth(dir: &Path, out: &str, press: &str, extra: &[&str]) -> PathBuf {
 }
 
 #[test]
-fn decode_and_synth_leave_their_inputs_byte_identical() {
+fn every_command_leaves_its_inputs_byte_identical() {
     let dir = tempfile::tempdir().expect("tempdir");
     let d = dir.path();
     let raw = synth(d, "gate.cu8", "pwm:0x5a5a5a", &["--rate", "1000000"]);
@@ -53,7 +53,19 @@ fn decode_and_synth_leave_their_inputs_byte_identical() {
     )
     .expect("write");
 
-    let inputs = [&raw, &wav, &meta, &data, &spec];
+    // A saved report is a budget input.
+    let r = run(&[
+        "decode",
+        raw.to_str().expect("utf-8"),
+        "--rate",
+        "1000000",
+        "--json",
+    ]);
+    assert_eq!(r.status, Some(0), "{}", r.stderr);
+    let report = d.join("gate.report.json");
+    fs::write(&report, &r.stdout).expect("write report");
+
+    let inputs = [&raw, &wav, &meta, &data, &spec, &report];
     let before: Vec<_> = inputs.iter().map(|p| snapshot(p)).collect();
     // A write during the runs would move the mtime past this pause.
     std::thread::sleep(Duration::from_millis(50));
@@ -77,7 +89,30 @@ fn decode_and_synth_leave_their_inputs_byte_identical() {
                     || r.stdout.contains("a5a")
             );
         }
+        // The commands that write files beside or from a capture.
+        let csv = d.join("frames.csv");
+        let svg = d.join("plot.svg");
+        let (csv_s, svg_s) = (csv.to_str().expect("utf-8"), svg.to_str().expect("utf-8"));
+        let rate: &[&str] = if capture == &raw {
+            &["--rate", "1000000"]
+        } else {
+            &[]
+        };
+        for cmd in [
+            vec!["decode", c, "--csv", csv_s, "--sigmf-annotate", "--force"],
+            vec!["plot", c, "--out", svg_s, "--force"],
+            vec!["budget", c],
+        ] {
+            let mut a = cmd.clone();
+            a.extend_from_slice(rate);
+            let r = run(&a);
+            assert_eq!(r.status, Some(0), "{a:?}: {}", r.stderr);
+            assert!(!panicked(&r.stderr), "{a:?}: {}", r.stderr);
+        }
+        assert!(csv.exists() && svg.exists());
     }
+    let r = run(&["budget", report.to_str().expect("utf-8"), "--json"]);
+    assert_eq!(r.status, Some(0), "budget REPORT: {}", r.stderr);
     let out = d.join("again.cu8");
     let r = run(&[
         "synth",
