@@ -9,8 +9,11 @@
 
 #![allow(dead_code)]
 
-use ooksift::decode::{decode_source, DecodeOptions};
+use ooksift::decode::{
+    channel_plans, decode_source, merge_reports, survey_with_mean, DecodeOptions, Decoder,
+};
 use ooksift::report::render_text;
+use ooksift::report::DecodeReport;
 use ooksift::source::{self, Datatype, OpenOptions, SampleSource, Samples, SigmfMeta, SigmfSource};
 use std::io::{self, Read};
 
@@ -118,6 +121,33 @@ pub fn sigmf_meta(data: &[u8]) -> Result<u64, String> {
     Ok(n)
 }
 
+/// What every report must satisfy: it renders, and its time figures are numbers.
+fn check_report(report: &DecodeReport) -> Result<(), String> {
+    let text = render_text(report);
+    assert!(!text.is_empty());
+    let json = serde_json::to_value(report).map_err(|e| e.to_string())?;
+    assert!(
+        json["capture"]["duration_s"].is_number(),
+        "{}",
+        json["capture"]
+    );
+    for code in json["codes"].as_array().into_iter().flatten() {
+        for key in [
+            "unit_us",
+            "frames_per_press",
+            "frame_airtime_ms",
+            "frame_on_time_ms",
+            "press_airtime_ms",
+            "press_on_time_ms",
+            "first_start_s",
+            "snr_db",
+        ] {
+            assert!(code[key].is_number(), "{key} is {} in {code}", code[key]);
+        }
+    }
+    Ok(())
+}
+
 /// Sample rates the whole-chain target picks from (byte 1).
 pub const CHAIN_RATES: [f64; 8] = [
     1.0, 1_000.0, 8_000.0, 48_000.0, 250_000.0, 1e6, 2.048e6, 1e12,
@@ -153,27 +183,61 @@ pub fn decode_chain(data: &[u8]) -> Result<usize, String> {
     let mut src = source::from_reader("fuzz", trickle(&data[3..], 3000), &opts.open)
         .map_err(|e| e.to_string())?;
     let report = decode_source(src.as_mut(), &opts).map_err(|e| e.to_string())?;
-    let text = render_text(&report);
-    assert!(!text.is_empty());
-    let json = serde_json::to_value(&report).map_err(|e| e.to_string())?;
-    assert!(
-        json["capture"]["duration_s"].is_number(),
-        "{}",
-        json["capture"]
-    );
-    for code in json["codes"].as_array().into_iter().flatten() {
-        for key in [
-            "unit_us",
-            "frames_per_press",
-            "frame_airtime_ms",
-            "frame_on_time_ms",
-            "press_airtime_ms",
-            "press_on_time_ms",
-            "first_start_s",
-            "snr_db",
-        ] {
-            assert!(code[key].is_number(), "{key} is {} in {code}", code[key]);
-        }
+    check_report(&report)?;
+    Ok(report.codes.len())
+}
+
+/// Bytes → codes through the per-carrier path `decode_path` takes for IQ files, step by step
+/// with the same public functions (survey, channel plans, one decoder per channel, merged
+/// reports), reading the bytes twice as it reads a file twice. Byte 0 picks one of the 14
+/// complex datatypes; bytes 1 and 2 and the rest as in [`decode_chain`].
+pub fn decode_channels(data: &[u8]) -> Result<usize, String> {
+    if data.len() < 3 {
+        return Err("too short".into());
     }
+    let complex: Vec<Datatype> = Datatype::all().into_iter().filter(|d| d.complex).collect();
+    let dt = complex[data[0] as usize % complex.len()];
+    let opts = DecodeOptions {
+        open: OpenOptions {
+            format: Some(dt.to_string()),
+            rate_hz: Some(CHAIN_RATES[data[1] as usize % CHAIN_RATES.len()]),
+            block_samples: 4096,
+            ..OpenOptions::default()
+        },
+        press_gap_ms: match data[2] {
+            0..=127 => None,
+            g => Some(f64::from(g - 128) * 2.0),
+        },
+        ..DecodeOptions::default()
+    };
+    let payload = &data[3..];
+    let open = || {
+        source::from_reader("fuzz", trickle(payload, 3000), &opts.open).map_err(|e| e.to_string())
+    };
+    let mut src = open()?;
+    let info = src.info().clone();
+    let (survey, mean) = survey_with_mean(src.as_mut()).map_err(|e| e.to_string())?;
+    let dc = if survey.dc_spike.is_some() {
+        mean
+    } else {
+        num_complex::Complex32::new(0.0, 0.0)
+    };
+    let plans = channel_plans(&survey, &info, &opts);
+    let mut src = open()?;
+    let report = if plans.is_empty() {
+        decode_source(src.as_mut(), &opts).map_err(|e| e.to_string())?
+    } else {
+        let mut decoders: Vec<Decoder> = plans
+            .into_iter()
+            .filter_map(|p| Decoder::for_channel(info.clone(), &opts, p, dc).ok())
+            .collect();
+        while let Some(block) = src.next_block().map_err(|e| e.to_string())? {
+            for d in &mut decoders {
+                d.push(block);
+            }
+        }
+        merge_reports(decoders.into_iter().map(Decoder::finish).collect())
+    };
+    check_report(&report)?;
     Ok(report.codes.len())
 }

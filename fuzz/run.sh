@@ -1,7 +1,7 @@
 #!/usr/bin/env bash
 # Runs the fuzz targets one after another (the machine is shared: one core each, in turn).
 #
-#   fuzz/run.sh [RUNS] [TARGET...]      # default: 10000000 runs of raw wav sigmf_meta decode_chain
+#   fuzz/run.sh [RUNS] [TARGET...]      # default: 10000000 runs of each target
 #
 # Needs a nightly toolchain and cargo-fuzz (`cargo install cargo-fuzz`). Builds without a
 # sanitizer (the code is safe Rust; a sanitizer halves the speed) but with debug assertions and
@@ -14,10 +14,10 @@ cd "$(dirname "${BASH_SOURCE[0]}")"
 runs=${1:-10000000}
 shift || true
 targets=("$@")
-[ ${#targets[@]} -gt 0 ] || targets=(raw wav sigmf_meta decode_chain)
+[ ${#targets[@]} -gt 0 ] || targets=(raw wav sigmf_meta decode_chain decode_channels)
 for t in "${targets[@]}"; do
     case $t in
-        decode_chain) max_len=16384 ;;
+        decode_chain | decode_channels) max_len=16384 ;;
         *) max_len=4096 ;;
     esac
     mkdir -p "corpus/$t"

@@ -15,11 +15,16 @@ fn chain(data: &[u8]) -> Result<u64, String> {
     harness::decode_chain(data).map(|n| n as u64)
 }
 
-const TARGETS: [Target; 4] = [
+fn channels(data: &[u8]) -> Result<u64, String> {
+    harness::decode_channels(data).map(|n| n as u64)
+}
+
+const TARGETS: [Target; 5] = [
     ("raw", harness::raw),
     ("wav", harness::wav),
     ("sigmf_meta", harness::sigmf_meta),
     ("decode_chain", chain),
+    ("decode_channels", channels),
 ];
 
 fn files(dir: &Path) -> Vec<PathBuf> {
@@ -49,7 +54,10 @@ fn kept_crash_inputs_and_the_malformed_corpus_do_not_panic_the_harness() {
             replayed += 1;
         }
     }
-    assert!(replayed >= 4 * 100, "only {replayed} inputs replayed");
+    assert!(
+        replayed >= TARGETS.len() * 100,
+        "only {replayed} inputs replayed"
+    );
 }
 
 #[test]
@@ -64,6 +72,14 @@ fn seeds_read_whole_and_decode_to_their_code() {
             // finds exactly the one code each holds.
             match name {
                 "decode_chain" => assert_eq!(got, Ok(1), "{}", p.display()),
+                "decode_channels" => {
+                    let want = if p.to_string_lossy().contains("two-") {
+                        2
+                    } else {
+                        1
+                    };
+                    assert_eq!(got, Ok(want), "{}", p.display())
+                }
                 _ => assert!(matches!(got, Ok(n) if n > 0), "{}: {got:?}", p.display()),
             }
         }
