@@ -7,6 +7,12 @@
 //! separating presses a human makes. Bursts with fewer than `min_marks` marks are dropped as
 //! noise.
 //!
+//! Marks weaker than [`WEAK_FRACTION`] of the burst's strong marks do not break that silence,
+//! and after a burst closes, marks that weak relative to it open no other until a full
+//! silence passes. So false marks in the noise between presses neither chain an endless
+//! stream into one burst (which would report nothing until the stream ends, and drop every
+//! press past the mark limit) nor make bursts of their own.
+//!
 //! ```
 //! use ooksift::bursts::{BurstConfig, BurstSplitter};
 //! use ooksift::edges::Mark;
@@ -99,10 +105,7 @@ pub fn refine(marks: Vec<Mark>, min_gap: f64) -> Vec<Vec<Mark>> {
     if marks.len() < 2 {
         return vec![marks];
     }
-    let mut levels: Vec<f32> = marks.iter().map(|m| m.level).collect();
-    levels.sort_by(f32::total_cmp);
-    let strong = levels[((levels.len() - 1) as f64 * 0.9) as usize];
-    let keep = WEAK_FRACTION * strong;
+    let keep = WEAK_FRACTION * reference_level(&marks);
     let mut parts: Vec<Vec<Mark>> = Vec::new();
     let mut cur: Vec<Mark> = Vec::new();
     for m in marks.into_iter().filter(|m| m.level >= keep) {
@@ -115,6 +118,16 @@ pub fn refine(marks: Vec<Mark>, min_gap: f64) -> Vec<Vec<Mark>> {
     }
     parts.push(cur);
     parts
+}
+
+/// The level of a burst's strong marks: the 90th percentile of its mark levels (0 if empty).
+fn reference_level(marks: &[Mark]) -> f32 {
+    let mut levels: Vec<f32> = marks.iter().map(|m| m.level).collect();
+    levels.sort_by(f32::total_cmp);
+    levels
+        .get(((levels.len().max(1) - 1) as f64 * 0.9) as usize)
+        .copied()
+        .unwrap_or(0.0)
 }
 
 /// Marks weaker than this fraction of a burst's strong marks are noise.
@@ -153,6 +166,20 @@ pub struct BurstSplitter {
     current: Vec<Mark>,
     longest_space: f64,
     capped: bool,
+    /// Typical level of the burst's strong marks (a moving average, so one spike barely
+    /// moves it).
+    level: f32,
+    /// Falling edge of the burst's last strong mark: silence is timed from there, so weak
+    /// false marks in the silence after a press neither keep the burst open nor join it.
+    last_strong_fall: f64,
+    /// Strongest level of the bursts closed in this chain of marks: a mark weaker than
+    /// [`WEAK_FRACTION`] of it cannot open a burst. A chain is what the burst rule alone makes
+    /// of all marks, weak ones included; it ends at a silence longer than its gap.
+    chain_level: f32,
+    /// Longest space between any two marks of the chain.
+    chain_longest: f64,
+    /// Falling edge of the chain's last mark, weak or strong; `None` once the chain ended.
+    last_fall: Option<f64>,
 }
 
 impl BurstSplitter {
@@ -163,7 +190,24 @@ impl BurstSplitter {
             current: Vec::new(),
             longest_space: 0.0,
             capped: false,
+            level: 0.0,
+            last_strong_fall: 0.0,
+            chain_level: 0.0,
+            chain_longest: 0.0,
+            last_fall: None,
         }
+    }
+
+    fn chain_gap(&self) -> f64 {
+        self.cfg
+            .min_gap
+            .max(self.cfg.gap_factor * self.chain_longest)
+    }
+
+    fn end_chain(&mut self) {
+        self.last_fall = None;
+        self.chain_level = 0.0;
+        self.chain_longest = 0.0;
     }
 
     fn gap(&self) -> f64 {
@@ -174,6 +218,9 @@ impl BurstSplitter {
 
     fn close(&mut self, out: &mut Vec<Burst>) {
         let marks = std::mem::take(&mut self.current);
+        if marks.len() >= self.cfg.min_marks {
+            self.chain_level = self.chain_level.max(reference_level(&marks));
+        }
         for part in refine(marks, self.cfg.min_gap) {
             if part.len() >= self.cfg.min_marks {
                 out.push(Burst {
@@ -188,13 +235,33 @@ impl BurstSplitter {
 
     /// Adds the next mark; a burst it ends is appended to `out`.
     pub fn push(&mut self, m: Mark, out: &mut Vec<Burst>) {
-        if let Some(last) = self.current.last() {
-            let space = m.rise - last.fall;
-            if space > self.gap() {
+        if let Some(last_fall) = self.last_fall {
+            let space = m.rise - last_fall;
+            if space > self.chain_gap() {
+                // A full silence: the chain ends, and its level is forgotten.
                 self.close(out);
+                self.end_chain();
             } else {
-                self.longest_space = self.longest_space.max(space);
+                self.chain_longest = self.chain_longest.max(space);
+                if !self.current.is_empty() && m.rise - self.last_strong_fall > self.gap() {
+                    // Only weak marks since the press ended.
+                    self.close(out);
+                }
             }
+        }
+        self.last_fall = Some(m.fall);
+        if self.current.is_empty() {
+            // NaN levels compare false: such a mark opens nothing.
+            let opens = m.level >= WEAK_FRACTION * self.chain_level;
+            if !opens {
+                return;
+            }
+            self.level = m.level;
+            self.last_strong_fall = m.fall;
+        } else if m.level >= WEAK_FRACTION * self.level {
+            self.longest_space = self.longest_space.max(m.rise - self.last_strong_fall);
+            self.level += 0.1 * (m.level - self.level);
+            self.last_strong_fall = m.fall;
         }
         if self.current.len() < self.cfg.max_marks {
             self.current.push(m);
@@ -206,10 +273,11 @@ impl BurstSplitter {
     /// Tells the splitter that nothing happened up to `pos`; closes a burst whose silence
     /// has grown past the gap (lets streams report presses as they end).
     pub fn idle_until(&mut self, pos: f64, out: &mut Vec<Burst>) {
-        if let Some(last) = self.current.last() {
-            if pos - last.fall > self.gap() {
-                self.close(out);
-            }
+        if !self.current.is_empty() && pos - self.last_strong_fall > self.gap() {
+            self.close(out);
+        }
+        if matches!(self.last_fall, Some(f) if pos - f > self.chain_gap()) {
+            self.end_chain();
         }
     }
 
@@ -221,5 +289,88 @@ impl BurstSplitter {
     /// Closes the last burst at the end of the capture.
     pub fn finish(&mut self, out: &mut Vec<Burst>) {
         self.close(out);
+        self.end_chain();
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn mark(rise: f64, level: f32) -> Mark {
+        Mark {
+            rise,
+            fall: rise + 10.0,
+            level,
+            noise: 0.01,
+            lag: Default::default(),
+        }
+    }
+
+    #[test]
+    fn weak_noise_marks_in_the_silence_do_not_chain_presses() {
+        // Regression: a stream whose silences held a weak false mark every 500 samples
+        // (below the 1000-sample gap) never closed its burst, so a live stream reported no
+        // press until it ended, and lost every press after the mark limit.
+        let cfg = BurstConfig {
+            min_gap: 1000.0,
+            gap_factor: 3.0,
+            min_marks: 3,
+            max_marks: 100_000,
+        };
+        let mut split = BurstSplitter::new(cfg);
+        let mut out = Vec::new();
+        let mut t = 0.0;
+        let mut closed_during_stream = Vec::new();
+        for press in 0..50 {
+            for k in 0..10 {
+                split.push(mark(t + 30.0 * k as f64, 1.0), &mut out);
+            }
+            t += 300.0;
+            // 20 000 samples of silence with a weak noise mark every 500.
+            for _ in 0..40 {
+                t += 500.0;
+                split.push(mark(t, 0.2), &mut out);
+                split.idle_until(t + 10.0, &mut out);
+            }
+            t += 500.0;
+            closed_during_stream.push((press, out.len()));
+        }
+        // Each press closed within the silence after it, not at the end of the stream.
+        for (press, closed) in closed_during_stream {
+            assert_eq!(closed, press + 1, "press {press}");
+        }
+        split.finish(&mut out);
+        assert_eq!(out.len(), 50);
+        for b in &out {
+            assert_eq!(b.marks.len(), 10);
+            assert!(!b.capped);
+        }
+    }
+
+    #[test]
+    fn a_press_after_weak_noise_is_kept_whole() {
+        let cfg = BurstConfig {
+            min_gap: 1000.0,
+            gap_factor: 3.0,
+            min_marks: 3,
+            max_marks: 1000,
+        };
+        let mut split = BurstSplitter::new(cfg);
+        let mut out = Vec::new();
+        // Weak noise marks chain into the start of a strong press.
+        for k in 0..5 {
+            split.push(mark(500.0 * k as f64, 0.2), &mut out);
+        }
+        for k in 0..10 {
+            split.push(mark(2600.0 + 30.0 * k as f64, 1.0), &mut out);
+        }
+        split.finish(&mut out);
+        let strong: usize = out
+            .iter()
+            .map(|b| b.marks.iter().filter(|m| m.level >= 1.0).count())
+            .sum();
+        assert_eq!(strong, 10);
+        assert!(out.iter().any(|b| b.marks.len() == 10));
     }
 }

@@ -712,7 +712,8 @@ fn emit(text: &str) {
 }
 
 fn fail(subject: &str, msg: impl std::fmt::Display) -> i32 {
-    eprintln!("ooksift: {subject}: {msg}");
+    // Not eprintln!: it panics when stderr is a closed pipe (`2>&1 | head`).
+    let _ = writeln!(std::io::stderr(), "ooksift: {subject}: {msg}");
     1
 }
 
@@ -983,7 +984,8 @@ fn synth_cmd(a: SynthArgs) -> i32 {
     }
     match synth::write_capture(&spec, &a.out, a.force) {
         Ok(truth) => {
-            eprintln!(
+            let _ = writeln!(
+                std::io::stderr(),
                 "ooksift: wrote {} ({} samples, {} code(s)) and {}",
                 out_name,
                 truth.capture.samples,

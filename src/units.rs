@@ -20,9 +20,13 @@ impl Rate {
     /// Highest rate accepted (1 THz): anything above is an absurd header, not a capture.
     pub const MAX_HZ: f64 = 1e12;
 
-    /// Wraps a rate; `None` unless `0 < hz <= 1e12` and finite.
+    /// Lowest rate accepted (1 Hz): below it a capture's duration can overflow to infinity
+    /// (`u64` samples at 1e-300 Hz), and no OOK signal fits anyway.
+    pub const MIN_HZ: f64 = 1.0;
+
+    /// Wraps a rate; `None` unless `1 <= hz <= 1e12` (so also finite).
     pub fn new(hz: f64) -> Option<Rate> {
-        (hz.is_finite() && hz > 0.0 && hz <= Self::MAX_HZ).then_some(Rate(hz))
+        (Self::MIN_HZ..=Self::MAX_HZ).contains(&hz).then_some(Rate(hz))
     }
 
     /// The rate in hertz.
@@ -79,6 +83,11 @@ mod tests {
         assert!(Rate::new(f64::INFINITY).is_none());
         assert!(Rate::new(2e12).is_none());
         assert!(Rate::new(48_000.0).is_some());
+        // A tiny rate made the duration of a capture infinite (JSON null): refused.
+        assert!(Rate::new(1e-300).is_none());
+        assert!(Rate::new(0.5).is_none());
+        assert!(Rate::new(1.0).is_some());
+        assert!(Rate::new(1e12).is_some());
     }
 
     #[test]

@@ -22,7 +22,7 @@ mod wav;
 
 pub use datatype::{Component, Datatype, UnknownDatatype};
 pub use raw::RawSource;
-pub use sigmf::SigmfSource;
+pub use sigmf::{SigmfMeta, SigmfSource};
 pub use wav::WavSource;
 
 use crate::units::Rate;
@@ -57,11 +57,14 @@ pub enum SourceError {
     /// A raw capture with no sample rate.
     #[error("no sample rate: raw captures need --rate HZ")]
     MissingRate,
-    /// A sample rate outside (0, 1e12] Hz.
-    #[error("absurd sample rate {0} Hz")]
+    /// A sample rate outside [1, 1e12] Hz.
+    #[error("absurd sample rate {} Hz (expected 1 Hz to 1 THz)", show_hz(*.0))]
     BadRate(f64),
-    /// A float sample that is NaN or infinite.
-    #[error("sample {index} is not a finite number ({value})")]
+    /// A float sample that is NaN or infinite, or a 64-bit float beyond the 32-bit range the
+    /// pipeline works in (`value` is then the infinity it became).
+    #[error(
+        "sample {index} is not a finite number within the 32-bit float range (read as {value})"
+    )]
     NonFinite { index: u64, value: f32 },
     /// WAV container problems reported by the WAV reader.
     #[error("bad WAV: {0}")]
@@ -81,6 +84,16 @@ pub enum SourceError {
         path: String,
         source: std::io::Error,
     },
+}
+
+/// A rate for a message: plain digits for ordinary values, exponent form for absurd ones (so
+/// `1e300` does not print as 301 digits).
+fn show_hz(hz: f64) -> String {
+    if hz == 0.0 || (hz.abs() >= 1e-3 && hz.abs() < 1e15) || !hz.is_finite() {
+        format!("{hz}")
+    } else {
+        format!("{hz:e}")
+    }
 }
 
 /// A `Result` of the source layer.
@@ -246,7 +259,6 @@ fn sniff(mut r: Box<dyn Read>) -> Result<(Vec<u8>, Box<dyn Read>)> {
 /// `.sigmf-data`, or an extension equal to a datatype such as `.cu8` or `.cf32_le`), else from
 /// the content (a RIFF header means WAV).
 pub fn open(path: &str, opts: &OpenOptions) -> Result<Box<dyn SampleSource>> {
-    let block = opts.block_samples.max(1);
     let chosen = match &opts.format {
         Some(f) => Some(choose_by_name(f)?),
         None if path == "-" => None,
@@ -270,6 +282,52 @@ pub fn open(path: &str, opts: &OpenOptions) -> Result<Box<dyn SampleSource>> {
     if file_len == Some(0) {
         return Err(SourceError::Empty);
     }
+    open_reader(path, reader, file_len, chosen, opts)
+}
+
+/// Builds a source over any byte stream (a pipe, a socket, bytes in memory): the same
+/// readers as [`open`], without a file behind them. `label` names the input in the
+/// [`CaptureInfo`]. The format comes from `opts.format` (a datatype name or `wav`), else from
+/// the content (a RIFF header means WAV); SigMF needs its metadata file and is refused.
+///
+/// ```
+/// use ooksift::source::{from_reader, OpenOptions};
+/// let bytes: Vec<u8> = vec![128; 4000]; // 2000 idle cu8 samples
+/// let opts = OpenOptions { format: Some("cu8".into()), rate_hz: Some(1e6), ..OpenOptions::default() };
+/// let mut src = from_reader("memory", Box::new(std::io::Cursor::new(bytes)), &opts).unwrap();
+/// assert_eq!(src.info().rate.hz(), 1e6);
+/// let mut n = 0;
+/// while let Some(block) = src.next_block().unwrap() {
+///     n += block.len();
+/// }
+/// assert_eq!(n, 2000);
+/// ```
+pub fn from_reader(
+    label: &str,
+    reader: Box<dyn Read>,
+    opts: &OpenOptions,
+) -> Result<Box<dyn SampleSource>> {
+    let chosen = match &opts.format {
+        Some(f) => Some(choose_by_name(f)?),
+        None => None,
+    };
+    if chosen == Some(Chosen::Sigmf) {
+        return Err(SourceError::Sigmf(
+            "SigMF needs its .sigmf-meta file; it cannot come from a stream".into(),
+        ));
+    }
+    open_reader(label, reader, None, chosen, opts)
+}
+
+/// The readers behind [`open`] and [`from_reader`]; `file_len` is the size when known.
+fn open_reader(
+    path: &str,
+    reader: Box<dyn Read>,
+    file_len: Option<u64>,
+    chosen: Option<Chosen>,
+    opts: &OpenOptions,
+) -> Result<Box<dyn SampleSource>> {
+    let block = opts.block_samples.max(1);
     let (head, reader) = sniff(reader)?;
     if head.is_empty() {
         return Err(SourceError::Empty);
@@ -322,5 +380,27 @@ mod tests {
         assert_eq!(choose_by_path("rec.sigmf-data"), Some(Chosen::Sigmf));
         assert_eq!(choose_by_path("x.bin"), None);
         assert!(choose_by_name("cu8_le").is_err());
+    }
+
+    #[test]
+    fn absurd_rates_print_briefly() {
+        let msg = |hz: f64| SourceError::BadRate(hz).to_string();
+        assert_eq!(
+            msg(1e300),
+            "absurd sample rate 1e300 Hz (expected 1 Hz to 1 THz)"
+        );
+        assert_eq!(
+            msg(-1e-300),
+            "absurd sample rate -1e-300 Hz (expected 1 Hz to 1 THz)"
+        );
+        assert_eq!(
+            msg(0.5),
+            "absurd sample rate 0.5 Hz (expected 1 Hz to 1 THz)"
+        );
+        assert_eq!(msg(0.0), "absurd sample rate 0 Hz (expected 1 Hz to 1 THz)");
+        assert_eq!(
+            msg(f64::NAN),
+            "absurd sample rate NaN Hz (expected 1 Hz to 1 THz)"
+        );
     }
 }

@@ -217,4 +217,22 @@ mod tests {
             "{err}"
         );
     }
+
+    #[test]
+    fn f64_beyond_the_f32_range_is_refused_without_calling_it_infinite() {
+        let mut bytes = Vec::new();
+        for v in [0.0f64, 1e300, 0.0, 0.0] {
+            bytes.extend_from_slice(&v.to_le_bytes());
+        }
+        let err = collect("cf64_le", bytes, 16, 16).expect_err("out of range");
+        assert!(
+            matches!(err, SourceError::NonFinite { index: 0, .. }),
+            "{err}"
+        );
+        assert!(
+            err.to_string()
+                .contains("not a finite number within the 32-bit float range"),
+            "{err}"
+        );
+    }
 }

@@ -31,6 +31,26 @@ fn wav_error(e: hound::Error) -> SourceError {
     }
 }
 
+/// The WAV reader reports a stream that ends early as an `Other` I/O error ("Failed to read
+/// enough bytes."), not as `UnexpectedEof`; both mean the same here.
+fn short_read(e: &std::io::Error) -> bool {
+    matches!(
+        e.kind(),
+        std::io::ErrorKind::UnexpectedEof | std::io::ErrorKind::Other
+    )
+}
+
+/// Header errors: a short read means the file ends inside the header.
+fn header_error(e: hound::Error) -> SourceError {
+    match e {
+        hound::Error::IoError(io) if short_read(&io) => SourceError::Wav(
+            "the header ends before the first sample (truncated file, or a chunk size past the end)"
+                .into(),
+        ),
+        other => wav_error(other),
+    }
+}
+
 impl WavSource {
     /// Reads the header from `reader`; `file_len` (when known) lets an impossible data-chunk
     /// size be refused before any sample is read.
@@ -41,7 +61,7 @@ impl WavSource {
         rate_override: Option<f64>,
         block_samples: usize,
     ) -> Result<WavSource> {
-        let reader = WavReader::new(reader).map_err(wav_error)?;
+        let reader = WavReader::new(reader).map_err(header_error)?;
         let spec = reader.spec();
         let channels = spec.channels as usize;
         if channels != 1 && channels != 2 {
@@ -84,7 +104,7 @@ impl WavSource {
             }
         }
         if declared_values == 0 {
-            return Err(SourceError::Empty);
+            return Err(SourceError::Wav("the data chunk holds no samples".into()));
         }
         let info = CaptureInfo {
             path: path.to_string(),
@@ -132,9 +152,7 @@ impl SampleSource for WavSource {
                             value: x,
                         })
                     }
-                    Err(hound::Error::IoError(e))
-                        if e.kind() == std::io::ErrorKind::UnexpectedEof =>
-                    {
+                    Err(hound::Error::IoError(e)) if short_read(&e) => {
                         return Err(truncated(
                             self.read_values + self.comps.len() as u64,
                             self.declared_values,
@@ -149,9 +167,7 @@ impl SampleSource for WavSource {
             for v in self.reader.samples::<i32>().take(want) {
                 match v {
                     Ok(x) => self.comps.push(x as f32 * scale),
-                    Err(hound::Error::IoError(e))
-                        if e.kind() == std::io::ErrorKind::UnexpectedEof =>
-                    {
+                    Err(hound::Error::IoError(e)) if short_read(&e) => {
                         return Err(truncated(
                             self.read_values + self.comps.len() as u64,
                             self.declared_values,
@@ -177,5 +193,84 @@ impl SampleSource for WavSource {
         } else {
             Ok(Some(Samples::Envelope(&self.comps)))
         }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::io::Cursor;
+
+    fn wav_bytes(samples: &[i16], declared_bytes: Option<u32>) -> Vec<u8> {
+        // Canonical 44-byte PCM header (common practice), mono 16-bit at 48 kHz.
+        let data_len = declared_bytes.unwrap_or(samples.len() as u32 * 2);
+        let mut v = Vec::new();
+        v.extend_from_slice(b"RIFF");
+        v.extend_from_slice(&(36 + data_len).to_le_bytes());
+        v.extend_from_slice(b"WAVEfmt ");
+        v.extend_from_slice(&16u32.to_le_bytes());
+        for x in [1u16, 1] {
+            v.extend_from_slice(&x.to_le_bytes());
+        }
+        v.extend_from_slice(&48_000u32.to_le_bytes());
+        v.extend_from_slice(&96_000u32.to_le_bytes());
+        for x in [2u16, 16] {
+            v.extend_from_slice(&x.to_le_bytes());
+        }
+        v.extend_from_slice(b"data");
+        v.extend_from_slice(&data_len.to_le_bytes());
+        for s in samples {
+            v.extend_from_slice(&s.to_le_bytes());
+        }
+        v
+    }
+
+    fn read_all(bytes: Vec<u8>) -> Result<u64> {
+        let mut src = WavSource::new("t", Box::new(Cursor::new(bytes)), None, None, 64)?;
+        let mut n = 0;
+        while let Some(b) = src.next_block()? {
+            n += b.len() as u64;
+        }
+        Ok(n)
+    }
+
+    #[test]
+    fn whole_stream_reads() {
+        assert_eq!(read_all(wav_bytes(&[0; 1000], None)).expect("reads"), 1000);
+    }
+
+    #[test]
+    fn a_stream_ending_inside_the_data_chunk_is_called_truncated() {
+        // Regression: the reader reports the short read as an `Other` error, which was
+        // printed as "cannot read: Failed to read enough bytes.".
+        let err = read_all(wav_bytes(&[0; 1000], Some(4000))).expect_err("truncated");
+        assert!(
+            matches!(
+                err,
+                SourceError::WavTruncated {
+                    declared: 2000,
+                    found: 1000
+                }
+            ),
+            "{err}"
+        );
+    }
+
+    #[test]
+    fn a_stream_ending_inside_the_header_says_so() {
+        let bytes = wav_bytes(&[0; 10], None);
+        for cut in [4, 12, 30, 43] {
+            let err = read_all(bytes[..cut].to_vec()).expect_err("short header");
+            assert!(err.to_string().contains("the header ends"), "{cut}: {err}");
+        }
+    }
+
+    #[test]
+    fn an_empty_data_chunk_is_not_called_an_empty_file() {
+        let err = read_all(wav_bytes(&[], None)).expect_err("no samples");
+        assert!(
+            err.to_string().contains("data chunk holds no samples"),
+            "{err}"
+        );
     }
 }

@@ -1,0 +1,9 @@
+//! Fuzz target `decode_chain`: see `fuzz/harness.rs` for what the input bytes mean.
+#![no_main]
+
+#[path = "../harness.rs"]
+mod harness;
+
+libfuzzer_sys::fuzz_target!(|data: &[u8]| {
+    let _ = harness::decode_chain(data);
+});

@@ -1,0 +1,29 @@
+#!/usr/bin/env bash
+# Runs the fuzz targets one after another (the machine is shared: one core each, in turn).
+#
+#   fuzz/run.sh [RUNS] [TARGET...]      # default: 10000000 runs of each target
+#
+# Needs a nightly toolchain and cargo-fuzz (`cargo install cargo-fuzz`). Builds without a
+# sanitizer (the code is safe Rust; a sanitizer halves the speed) but with debug assertions and
+# overflow checks, so an integer overflow is a crash too. Corpora grow in fuzz/corpus/TARGET
+# (not committed) from the committed seeds in fuzz/seeds/TARGET; a crash lands in
+# fuzz/artifacts/TARGET/ — keep it under tests/fuzz-crashes/TARGET/ once fixed, where
+# tests/fuzz_crashes.rs replays it.
+set -euo pipefail
+cd "$(dirname "${BASH_SOURCE[0]}")"
+runs=${1:-10000000}
+shift || true
+targets=("$@")
+[ ${#targets[@]} -gt 0 ] || targets=(raw wav sigmf_meta decode_chain decode_channels)
+for t in "${targets[@]}"; do
+    case $t in
+        decode_chain | decode_channels) max_len=16384 ;;
+        *) max_len=4096 ;;
+    esac
+    mkdir -p "corpus/$t"
+    echo "== $t: $runs runs, max_len $max_len, started $(date -u +%FT%TZ)"
+    start=$(date +%s)
+    cargo +nightly fuzz run -s none "$t" "corpus/$t" "seeds/$t" -- \
+        -runs="$runs" -max_len="$max_len" -timeout=10 -rss_limit_mb=2048 -print_final_stats=1
+    echo "== $t: done in $(( $(date +%s) - start )) s"
+done
