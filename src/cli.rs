@@ -711,6 +711,13 @@ fn emit(text: &str) {
     }
 }
 
+/// Like `eprintln!`, but a closed stderr is ignored instead of panicking.
+macro_rules! note {
+    ($($arg:tt)*) => {{
+        let _ = writeln!(std::io::stderr(), $($arg)*);
+    }};
+}
+
 fn fail(subject: &str, msg: impl std::fmt::Display) -> i32 {
     // Not eprintln!: it panics when stderr is a closed pipe (`2>&1 | head`).
     let _ = writeln!(std::io::stderr(), "ooksift: {subject}: {msg}");
@@ -773,7 +780,7 @@ fn decode(args: DecodeArgs) -> i32 {
     }
     if inputs.len() > 1 && !args.quiet {
         let codes: usize = reports.iter().map(|r| r.codes.len()).sum();
-        eprintln!(
+        note!(
             "ooksift: {} capture(s) decoded, {} code(s) found, {} failed",
             reports.len(),
             codes,
@@ -1075,7 +1082,7 @@ fn plot_cmd(a: PlotArgs) -> i32 {
     };
     match write_svg(&data, &a.out, a.force) {
         Ok(()) => {
-            eprintln!(
+            note!(
                 "ooksift: wrote {} ({} code(s), {:.3}–{:.3} s)",
                 out_name,
                 data.report.codes.len(),
@@ -1100,7 +1107,7 @@ fn write_interchange(args: &DecodeArgs, reports: &[DecodeReport]) -> i32 {
     if args.sigmf_annotate {
         for r in reports {
             match sigmf::write_annotations(r, args.force) {
-                Ok(a) => eprintln!(
+                Ok(a) => note!(
                     "ooksift: wrote {} ({} annotation(s){})",
                     a.meta.display(),
                     a.annotations,

@@ -26,7 +26,9 @@ impl Rate {
 
     /// Wraps a rate; `None` unless `1 <= hz <= 1e12` (so also finite).
     pub fn new(hz: f64) -> Option<Rate> {
-        (Self::MIN_HZ..=Self::MAX_HZ).contains(&hz).then_some(Rate(hz))
+        (Self::MIN_HZ..=Self::MAX_HZ)
+            .contains(&hz)
+            .then_some(Rate(hz))
     }
 
     /// The rate in hertz.

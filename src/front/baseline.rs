@@ -68,10 +68,14 @@ pub struct Restorer {
     scratch: Vec<f32>,
 }
 
+/// Samples in one analysis window at most (0.5 s at 2 MHz).
+pub const MAX_WINDOW: usize = 1 << 20;
+
 impl Restorer {
     /// A restorer for an envelope sampled at `rate_hz`.
     pub fn new(rate_hz: f64) -> Restorer {
-        let window = ((rate_hz * WINDOW_S) as usize).max(4096);
+        // Bounded: an absurd rate in a header must not become an absurd allocation.
+        let window = ((rate_hz * WINDOW_S) as usize).clamp(4096, MAX_WINDOW);
         Restorer {
             rate_hz,
             window,
