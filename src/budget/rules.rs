@@ -571,7 +571,7 @@ const EU_BANDS: [BandDef; 3] = [
         clause: "ERC/REC 70-03 Annex 1, non-specific SRD, 433.050-434.790 MHz (entry f of the \
                  2009 edition)",
         rule: "10 mW e.r.p., duty cycle at most 10 % over one hour, no channel spacing; \
-               audio/video excluded",
+               audio-visual uses excluded",
         low_hz: 433.050e6,
         high_hz: 434.790e6,
         erp_mw: 10.0,
