@@ -233,19 +233,35 @@ impl Decoder {
     /// Second pass over one burst: the envelope re-smoothed to about a third of the burst's
     /// own short element, edges found again, and the press decoded from them. Returns `None`
     /// when the history no longer holds the burst or the smoothing would not change.
-    fn reslice(&self, burst: &Burst) -> Option<PressDecode> {
+    fn reslice(&self, burst: &Burst) -> Option<(Option<PressDecode>, Vec<Mark>)> {
         let mut cleaned = burst.marks.clone();
         crate::bursts::merge_glitches(&mut cleaned, frames::GLITCH_FRACTION);
         let rough = coding::assess(&cleaned).into_iter().next()?;
         let unit_env = rough.unit / self.env.decim();
         let half = ((0.3 * unit_env) / 2.0).floor() as usize;
+        let marks = self.smoothed_marks(burst, half, 16.0 * unit_env)?;
+        let press = frames::decode_press_with(
+            &Burst {
+                marks: marks.clone(),
+                capped: burst.capped,
+            },
+            &self.press_opts,
+        );
+        Some((press, marks))
+    }
+
+    /// The burst's envelope history (from a margin before it to `after` envelope samples
+    /// past it) smoothed by a centred moving average of `2·half + 1` samples, and its marks,
+    /// found with a lower threshold than the first pass's and placed by the area method, in
+    /// capture positions.
+    fn smoothed_marks(&self, burst: &Burst, half: usize, after: f64) -> Option<Vec<Mark>> {
         if half < 1 {
             return None;
         }
         let a = (self.env_index(burst.start()).floor() as i64 - self.margin as i64).max(0) as u64;
         // The first pass may have missed weak marks at either end: look a margin before and
-        // sixteen units after the burst.
-        let b = self.env_index(burst.end()).ceil() as u64 + (16.0 * unit_env).ceil() as u64;
+        // some units after the burst.
+        let b = self.env_index(burst.end()).ceil() as u64 + after.max(0.0).ceil() as u64;
         if a < self.hist_start {
             return None;
         }
@@ -294,13 +310,200 @@ impl Decoder {
                 ..m
             })
             .collect();
-        frames::decode_press_with(
-            &Burst {
-                marks,
-                capped: burst.capped,
-            },
-            &self.press_opts,
-        )
+        Some(marks)
+    }
+
+    /// Third reading of one burst: the most likely symbol sequence under the burst's timing
+    /// plan ([`crate::trellis`]), laid on the envelope history. The plan comes from the
+    /// second pass's marks when they read as PWM or PPM, else from the first pass's; frames
+    /// are searched first with free lengths, then again with the modal length.
+    fn trellis_reading(
+        &self,
+        burst: &Burst,
+        second: Option<&[Mark]>,
+        known_bits: Option<usize>,
+    ) -> Option<PressDecode> {
+        // Marks to read a plan from: the second pass's, the first pass's, and the envelope
+        // smoothed over a ladder of fixed widths (near the noise floor the first two may not
+        // show the timing at all).
+        let mut bases: Vec<Vec<Mark>> = Vec::new();
+        if let Some(m) = second {
+            bases.push(m.to_vec());
+        }
+        bases.push(burst.marks.clone());
+        for us in LADDER_US {
+            let half = (us * 1e-6 * self.env_rate / 2.0).floor() as usize;
+            if let Some(m) = self.smoothed_marks(burst, half, us * 1e-6 * self.env_rate * 8.0) {
+                bases.push(m);
+            }
+        }
+        let mut plans: Vec<(crate::trellis::PlanReading, usize)> = Vec::new();
+        for (i, m) in bases.iter().enumerate() {
+            if let Some(p) = crate::trellis::plan_of(m) {
+                if !plans.iter().any(|q| same_plan(&q.0.plan, &p.plan)) {
+                    plans.push((p, i));
+                }
+            }
+        }
+        let rank = |p: &PressDecode| (p.frames.len(), std::cmp::Reverse(p.corrected_bits));
+        let mut best: Option<PressDecode> = None;
+        for (reading, i) in plans {
+            let r = self
+                .trellis_with(burst, reading.plan, &bases[i], known_bits)
+                .map(|mut p| {
+                    // The line-code evidence is the widths the plan was read from; the
+                    // trellis's own widths fit the plan by construction.
+                    p.score = reading.score;
+                    p.runner_up = reading.runner_up;
+                    p
+                });
+            best = match (best, r) {
+                (Some(b), Some(r)) if rank(&r) > rank(&b) => Some(r),
+                (b, r) => b.or(r),
+            };
+        }
+        best
+    }
+
+    /// One trellis search of `burst` under `plan` (capture samples), with levels measured
+    /// around `basis`'s marks.
+    fn trellis_with(
+        &self,
+        burst: &Burst,
+        plan: crate::trellis::Plan,
+        basis: &[Mark],
+        known_bits: Option<usize>,
+    ) -> Option<PressDecode> {
+        let decim = self.env.decim();
+        let unit_env = plan.unit / decim;
+        if unit_env < 2.0 {
+            return None;
+        }
+        let a = (self.env_index(burst.start()).floor() as i64 - self.margin as i64).max(0) as u64;
+        let b = self.env_index(burst.end()).ceil() as u64 + (16.0 * unit_env).ceil() as u64;
+        if a < self.hist_start {
+            return None;
+        }
+        let lo = (a - self.hist_start) as usize;
+        let hi = ((b.saturating_sub(self.hist_start)) as usize).min(self.hist.len());
+        if hi <= lo + 16 {
+            return None;
+        }
+        let env = &self.hist[lo..hi];
+        // Levels: idle from the quiet margin before the first mark, carrier from the middles
+        // of the marks the plan was read from.
+        let to_env = |pos: f64| self.env_index(pos) - a as f64;
+        // Samples well inside marks are carrier; samples half a unit or more from any mark
+        // are idle (medians: robust to the filter's start-up and to stray marks).
+        let mut inside = vec![0u8; env.len()]; // 0 idle, 1 near a mark, 2 carrier
+        for m in basis {
+            let (r, f) = (to_env(m.rise), to_env(m.fall));
+            let (r0, f0) = (
+                (r - 0.5 * unit_env).max(0.0) as usize,
+                ((f + 0.5 * unit_env).max(0.0) as usize).min(env.len()),
+            );
+            for v in inside.iter_mut().take(f0).skip(r0) {
+                *v = (*v).max(1);
+            }
+            if f - r >= 0.8 * unit_env {
+                let pad = 0.2 * (f - r);
+                let (r1, f1) = (
+                    (r + pad).max(0.0) as usize,
+                    ((f - pad).max(0.0) as usize).min(env.len()),
+                );
+                for v in inside.iter_mut().take(f1).skip(r1) {
+                    *v = 2;
+                }
+            }
+        }
+        let pick = |k: u8| -> Vec<f32> {
+            env.iter()
+                .zip(&inside)
+                .filter(|(_, &c)| c == k)
+                .map(|(&x, _)| x)
+                .collect()
+        };
+        let (mut quiet, mut on) = (pick(0), pick(2));
+        if quiet.len() < 16 || on.len() < 16 {
+            return None;
+        }
+        let median = |v: &mut [f32]| -> f64 {
+            let k = v.len() / 2;
+            *v.select_nth_unstable_by(k, f32::total_cmp).1 as f64
+        };
+        let (idle, carrier) = (median(&mut quiet), median(&mut on));
+        if carrier <= idle {
+            return None;
+        }
+        let spread = (quiet
+            .iter()
+            .map(|&x| (x as f64 - idle).powi(2))
+            .sum::<f64>()
+            / quiet.len() as f64)
+            .sqrt();
+        let mean = |v: &[f32]| v.iter().map(|&x| x as f64).sum::<f64>() / v.len() as f64;
+        let mid = (idle + 0.5 * (carrier - idle)) as f32;
+        let llr: Vec<f32> = env.iter().map(|&x| x - mid).collect();
+        let env_plan = crate::trellis::Plan {
+            unit: unit_env,
+            ..plan
+        };
+        let lag = &self.lag_hist;
+        let build = |spans: Vec<(f64, f64)>| -> Option<PressDecode> {
+            if spans.is_empty() {
+                return None;
+            }
+            let marks: Vec<Mark> = spans
+                .into_iter()
+                .map(|(r, f)| {
+                    let (ri, fi) = (r as usize, (f as usize).min(env.len()));
+                    let level = if fi > ri {
+                        mean(&env[ri..fi]) - idle
+                    } else {
+                        0.0
+                    };
+                    let lag_sum = if lag.len() >= hi {
+                        lag[lo + ri..lo + fi]
+                            .iter()
+                            .map(|z| num_complex::Complex64::new(z.re as f64, z.im as f64))
+                            .sum()
+                    } else {
+                        num_complex::Complex64::default()
+                    };
+                    Mark {
+                        rise: self.env.position_of(r + a as f64),
+                        fall: self.env.position_of(f + a as f64),
+                        level: level as f32,
+                        noise: spread as f32,
+                        lag: lag_sum,
+                    }
+                })
+                .collect();
+            frames::decode_press_with(
+                &Burst {
+                    marks,
+                    capped: burst.capped,
+                },
+                &self.press_opts,
+            )
+        };
+        if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+            eprintln!("  trellis plan {env_plan:?} idle {idle:.4} carrier {carrier:.4} spread {spread:.4}");
+        }
+        // Frame lengths to search: the free search's modal length and the edge readings'.
+        let mut lengths: Vec<usize> = known_bits.into_iter().collect();
+        if let Some(p) = build(crate::trellis::segment(&llr, &env_plan)) {
+            if !lengths.contains(&p.bits.len()) {
+                lengths.push(p.bits.len());
+            }
+        }
+        // A trellis lays perfect widths by construction, so a single clean-looking frame
+        // proves nothing: its readings need repeats that agree.
+        lengths
+            .into_iter()
+            .filter_map(|n| build(crate::trellis::segment_frames(&llr, &env_plan, Some(n))))
+            .filter(|p| p.frames.len() >= 2)
+            .max_by_key(|p| (p.frames.len(), std::cmp::Reverse(p.corrected_bits)))
     }
 
     fn route_marks(&mut self) {
@@ -324,7 +527,17 @@ impl Decoder {
                 ));
             }
             let first = frames::decode_press_with(&b, &self.press_opts);
-            let second = self.reslice(&b);
+            let (second, second_marks) = match self.reslice(&b) {
+                Some((p, m)) => (p, Some(m)),
+                None => (None, None),
+            };
+            let known = [&first, &second]
+                .into_iter()
+                .flatten()
+                .filter(|p| p.frames.len() >= 2)
+                .map(|p| p.bits.len())
+                .next();
+            let third = self.trellis_reading(&b, second_marks.as_deref(), known);
             if std::env::var_os("OOKSIFT_DEBUG").is_some() {
                 let d = |p: &Option<PressDecode>| {
                     p.as_ref().map(|p| {
@@ -336,15 +549,16 @@ impl Decoder {
                     })
                 };
                 eprintln!(
-                    "burst {:.4}..{:.4} s, {} marks: first {:?} second {:?}",
+                    "burst {:.4}..{:.4} s, {} marks: first {:?} second {:?} trellis {:?}",
                     self.info.rate.to_s(b.start()),
                     self.info.rate.to_s(b.end()),
                     b.marks.len(),
                     d(&first),
-                    d(&second)
+                    d(&second),
+                    d(&third)
                 );
             }
-            match better(first, second) {
+            match prefer_trellis(better(first, second), third) {
                 Some(p) if self.presses.len() < self.max_presses => self.presses.push(p),
                 Some(_) => {
                     if !self.notes.iter().any(|n| n.starts_with("press limit")) {
@@ -450,6 +664,32 @@ fn better(a: Option<PressDecode>, b: Option<PressDecode>) -> Option<PressDecode>
             Some(if key(&b) >= key(&a) { b } else { a })
         }
         (a, b) => a.or(b),
+    }
+}
+
+/// Smoothing widths (µs) the trellis stage reads timing plans from, besides the first and
+/// second passes' marks.
+const LADDER_US: [f64; 3] = [120.0, 250.0, 500.0];
+
+/// Plans alike enough to give the same search.
+fn same_plan(a: &crate::trellis::Plan, b: &crate::trellis::Plan) -> bool {
+    (a.unit - b.unit).abs() <= 0.03 * a.unit
+        && a.symbols == b.symbols
+        && a.header == b.header
+        && a.closing == b.closing
+}
+
+/// The trellis reading replaces the edge-based one only when it holds more full frames, or as
+/// many with fewer corrected bits: on clean bursts the edge-based reading keeps its
+/// sub-sample edges.
+fn prefer_trellis(edges: Option<PressDecode>, trellis: Option<PressDecode>) -> Option<PressDecode> {
+    match (edges, trellis) {
+        (Some(e), Some(t)) => {
+            let wins = t.frames.len() > e.frames.len()
+                || (t.frames.len() == e.frames.len() && t.corrected_bits < e.corrected_bits);
+            Some(if wins { t } else { e })
+        }
+        (e, t) => e.or(t),
     }
 }
 
