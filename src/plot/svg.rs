@@ -318,7 +318,7 @@ pub fn view_source(d: &PlotData) -> String {
     match &d.channel {
         Some(c) => {
             let asked = match c.requested_hz {
-                Some(f) => format!("nearest to {}", khz(f)),
+                Some(f) => format!("asked for {}", khz(f)),
                 None => "the strongest".to_string(),
             };
             format!(
@@ -346,7 +346,7 @@ fn envelope_view(svg: &mut Svg, d: &PlotData) {
         "Envelope over time",
     );
     svg.text(
-        LEFT + 150.0,
+        LEFT + 172.0,
         74.0,
         r##"class="view-source" font-size="12" fill="#1f4e79""##,
         &view_source(d),
