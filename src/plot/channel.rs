@@ -226,6 +226,83 @@ pub(crate) fn collect_channel(
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::source::Container;
+    use crate::units::Rate;
+
+    fn info() -> Option<CaptureInfo> {
+        Some(CaptureInfo {
+            path: "harrowgate.cu8".into(),
+            container: Container::Raw,
+            datatype: "cu8".parse().ok()?,
+            rate: Rate::new(250_000.0)?,
+            center_frequency_hz: None,
+            declared_samples: None,
+        })
+    }
+
+    fn carrier(offset_hz: f64, peak_db: f32, continuous: bool) -> Carrier {
+        Carrier {
+            offset_hz,
+            peak_db,
+            avg_db: peak_db - 20.0,
+            snr_db: 30.0,
+            occupied_bw_hz: 1_000.0,
+            activity: if continuous { 1.0 } else { 0.1 },
+            continuous,
+            low_hz: offset_hz - 500.0,
+            high_hz: offset_hz + 500.0,
+        }
+    }
+
+    fn survey(carriers: Vec<Carrier>) -> Survey {
+        Survey {
+            rate_hz: 250_000.0,
+            fft_len: 64,
+            bin_hz: 250_000.0 / 64.0,
+            samples: 0,
+            frames: 0,
+            avg_db: vec![-60.0; 64],
+            peak_db: vec![-50.0; 64],
+            floor_db: -60.0,
+            peak_floor_db: -50.0,
+            carriers,
+            dc_spike: None,
+        }
+    }
+
+    #[test]
+    fn the_nearest_bursty_carrier_within_its_channel_is_picked() {
+        let info = info().expect("a valid capture description");
+        let s = survey(vec![
+            carrier(-40_000.0, -10.0, true),
+            carrier(25_000.0, -30.0, false),
+            carrier(60_000.0, -20.0, false),
+        ]);
+        let opts = DecodeOptions::default();
+        let pick = |c| pick_carrier(&s, &info, &opts, c).map(|(k, p)| (k.offset_hz, p));
+        // A 1 kHz-wide carrier gets decode's narrowest channel, 8 kHz (decode.rs
+        // `channel_plans`): half of it is below the 5 kHz floor, so ±5 kHz is accepted.
+        let (off, plan) = pick(ChannelChoice::Nearest(29_900.0)).expect("within 5 kHz");
+        assert_eq!(off, 25_000.0);
+        assert_eq!(plan.bandwidth_hz, 8_000.0);
+        assert_eq!(plan.offset_hz, 25_000.0);
+        assert!(pick(ChannelChoice::Nearest(30_100.0)).is_err());
+        // The steady carrier is never a candidate, however strong or near.
+        assert!(matches!(
+            pick(ChannelChoice::Nearest(-40_000.0)),
+            Err(PlotError::Carrier(m)) if m.contains("−40.0 kHz steady")
+        ));
+        assert_eq!(pick(ChannelChoice::Strongest).expect("bursty").0, 60_000.0);
+        assert!(pick(ChannelChoice::Nearest(f64::NAN)).is_err());
+        assert!(pick(ChannelChoice::Nearest(433.92e6)).is_err());
+        assert!(pick(ChannelChoice::WholeBand).is_err());
+        // Only a steady carrier: nothing to show.
+        let steady = survey(vec![carrier(-40_000.0, -10.0, true)]);
+        assert!(matches!(
+            pick_carrier(&steady, &info, &opts, ChannelChoice::Strongest),
+            Err(PlotError::Carrier(m)) if m.contains("no bursty carrier")
+        ));
+    }
 
     #[test]
     fn offsets_read_with_a_sign_and_one_decimal() {
