@@ -339,48 +339,21 @@ impl Decoder {
         }
         let mut plans: Vec<(crate::trellis::PlanReading, usize)> = Vec::new();
         for (i, m) in bases.iter().enumerate() {
-            if let Some(p) = crate::trellis::plan_of(m) {
+            for p in crate::trellis::plans_of(m) {
                 if !plans.iter().any(|q| same_plan(&q.0.plan, &p.plan)) {
                     plans.push((p, i));
                 }
             }
         }
-        let rank = |p: &PressDecode| (p.frames.len(), std::cmp::Reverse(p.corrected_bits));
-        let mut best: Option<PressDecode> = None;
-        for (reading, i) in plans {
-            let r = self
-                .trellis_with(burst, reading.plan, &bases[i], known_bits)
-                .map(|mut p| {
-                    // The line-code evidence is the widths the plan was read from; the
-                    // trellis's own widths fit the plan by construction.
-                    p.score = reading.score;
-                    p.runner_up = reading.runner_up;
-                    p
-                });
-            best = match (best, r) {
-                (Some(b), Some(r)) if rank(&r) > rank(&b) => Some(r),
-                (b, r) => b.or(r),
-            };
-        }
-        best
-    }
-
-    /// One trellis search of `burst` under `plan` (capture samples), with levels measured
-    /// around `basis`'s marks.
-    fn trellis_with(
-        &self,
-        burst: &Burst,
-        plan: crate::trellis::Plan,
-        basis: &[Mark],
-        known_bits: Option<usize>,
-    ) -> Option<PressDecode> {
+        // One window and one set of levels for every plan, so their likelihoods compare.
         let decim = self.env.decim();
-        let unit_env = plan.unit / decim;
-        if unit_env < 2.0 {
-            return None;
-        }
+        let longest = plans
+            .iter()
+            .map(|p| p.0.plan.unit / decim)
+            .fold(0.0, f64::max);
+        let first_unit = plans.first()?.0.plan.unit / decim;
         let a = (self.env_index(burst.start()).floor() as i64 - self.margin as i64).max(0) as u64;
-        let b = self.env_index(burst.end()).ceil() as u64 + (16.0 * unit_env).ceil() as u64;
+        let b = self.env_index(burst.end()).ceil() as u64 + (16.0 * longest).ceil() as u64;
         if a < self.hist_start {
             return None;
         }
@@ -390,72 +363,93 @@ impl Decoder {
             return None;
         }
         let env = &self.hist[lo..hi];
-        // Levels: idle from the quiet margin before the first mark, carrier from the middles
-        // of the marks the plan was read from.
-        let to_env = |pos: f64| self.env_index(pos) - a as f64;
-        // Samples well inside marks are carrier; samples half a unit or more from any mark
-        // are idle (medians: robust to the filter's start-up and to stray marks).
-        let mut inside = vec![0u8; env.len()]; // 0 idle, 1 near a mark, 2 carrier
-        for m in basis {
-            let (r, f) = (to_env(m.rise), to_env(m.fall));
-            let (r0, f0) = (
-                (r - 0.5 * unit_env).max(0.0) as usize,
-                ((f + 0.5 * unit_env).max(0.0) as usize).min(env.len()),
-            );
-            for v in inside.iter_mut().take(f0).skip(r0) {
-                *v = (*v).max(1);
-            }
-            if f - r >= 0.8 * unit_env {
-                let pad = 0.2 * (f - r);
-                let (r1, f1) = (
-                    (r + pad).max(0.0) as usize,
-                    ((f - pad).max(0.0) as usize).min(env.len()),
-                );
-                for v in inside.iter_mut().take(f1).skip(r1) {
-                    *v = 2;
-                }
-            }
-        }
-        let pick = |k: u8| -> Vec<f32> {
-            env.iter()
-                .zip(&inside)
-                .filter(|(_, &c)| c == k)
-                .map(|(&x, _)| x)
-                .collect()
-        };
-        let (mut quiet, mut on) = (pick(0), pick(2));
-        if quiet.len() < 16 || on.len() < 16 {
-            return None;
-        }
-        let median = |v: &mut [f32]| -> f64 {
-            let k = v.len() / 2;
-            *v.select_nth_unstable_by(k, f32::total_cmp).1 as f64
-        };
-        let (idle, carrier) = (median(&mut quiet), median(&mut on));
-        if carrier <= idle {
-            return None;
-        }
-        let spread = (quiet
-            .iter()
-            .map(|&x| (x as f64 - idle).powi(2))
-            .sum::<f64>()
-            / quiet.len() as f64)
-            .sqrt();
-        let mean = |v: &[f32]| v.iter().map(|&x| x as f64).sum::<f64>() / v.len() as f64;
+        let (idle, carrier, spread) = two_levels(env, (first_unit / 2.0).floor() as usize)?;
         let mid = (idle + 0.5 * (carrier - idle)) as f32;
         let llr: Vec<f32> = env.iter().map(|&x| x - mid).collect();
-        let env_plan = crate::trellis::Plan {
-            unit: unit_env,
-            ..plan
+        if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+            eprintln!("  trellis levels idle {idle:.4} carrier {carrier:.4} spread {spread:.4}");
+        }
+        let win = TrellisWindow {
+            a,
+            lo,
+            hi,
+            env,
+            llr: &llr,
+            idle,
+            carrier,
+            spread,
         };
+        // Plans compete by the likelihood of their best readings.
+        let mut best: Option<(f64, PressDecode)> = None;
+        for (reading, _) in plans {
+            let r = self
+                .trellis_with(burst, &win, reading.plan, reading.line_code, known_bits)
+                .map(|(score, mut p)| {
+                    // The line-code evidence is the widths the plan was read from; the
+                    // trellis's own widths fit the plan by construction.
+                    p.score = reading.score;
+                    p.runner_up = reading.runner_up;
+                    (score, p)
+                });
+            if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+                if let Some((sc, p)) = &r {
+                    eprintln!(
+                        "  trellis reading score {sc:.1}: {} {} x{}",
+                        p.line_code,
+                        frames::bit_string(&p.bits),
+                        p.frames.len()
+                    );
+                }
+            }
+            best = match (best, r) {
+                (Some(b), Some(r)) if r.0 > b.0 => Some(r),
+                (b, r) => b.or(r),
+            };
+        }
+        best.map(|b| b.1)
+    }
+
+    /// One trellis search of `burst` under `plan` (capture samples) in the window `win`.
+    fn trellis_with(
+        &self,
+        burst: &Burst,
+        win: &TrellisWindow<'_>,
+        plan: crate::trellis::Plan,
+        line_code: coding::LineCode,
+        known_bits: Option<usize>,
+    ) -> Option<(f64, PressDecode)> {
+        let unit_env = plan.unit / self.env.decim();
+        if unit_env < 2.0 {
+            return None;
+        }
+        let TrellisWindow {
+            a,
+            lo,
+            hi,
+            env,
+            llr,
+            idle,
+            spread,
+            ..
+        } = *win;
+        let mean = |v: &[f32]| v.iter().map(|&x| x as f64).sum::<f64>() / v.len() as f64;
+        let env_plan = crate::trellis::fit_unit(
+            llr,
+            &crate::trellis::Plan {
+                unit: unit_env,
+                ..plan
+            },
+            0.15,
+            0.025,
+        );
         let lag = &self.lag_hist;
-        let build = |spans: Vec<(f64, f64)>| -> Option<PressDecode> {
+        let build = |spans: &[(f64, f64)]| -> Option<PressDecode> {
             if spans.is_empty() {
                 return None;
             }
             let marks: Vec<Mark> = spans
-                .into_iter()
-                .map(|(r, f)| {
+                .iter()
+                .map(|&(r, f)| {
                     let (ri, fi) = (r as usize, (f as usize).min(env.len()));
                     let level = if fi > ri {
                         mean(&env[ri..fi]) - idle
@@ -479,31 +473,77 @@ impl Decoder {
                     }
                 })
                 .collect();
+            // The marks are read as the code the plan belongs to (a forced code must match).
+            if self.press_opts.line_code.is_some_and(|lc| lc != line_code) {
+                return None;
+            }
+            let opts = frames::PressOptions {
+                line_code: Some(line_code),
+                ..self.press_opts
+            };
             frames::decode_press_with(
                 &Burst {
                     marks,
                     capped: burst.capped,
                 },
-                &self.press_opts,
+                &opts,
             )
         };
-        if std::env::var_os("OOKSIFT_DEBUG").is_some() {
-            eprintln!("  trellis plan {env_plan:?} idle {idle:.4} carrier {carrier:.4} spread {spread:.4}");
-        }
-        // Frame lengths to search: the free search's modal length and the edge readings'.
+        // Frame lengths to search: the edge readings' and the free search's modal length.
         let mut lengths: Vec<usize> = known_bits.into_iter().collect();
-        if let Some(p) = build(crate::trellis::segment(&llr, &env_plan)) {
-            if !lengths.contains(&p.bits.len()) {
-                lengths.push(p.bits.len());
+        if let Some(n) = crate::trellis::segment(llr, &env_plan).modal_bits() {
+            if !lengths.contains(&n) {
+                lengths.push(n);
             }
         }
-        // A trellis lays perfect widths by construction, so a single clean-looking frame
-        // proves nothing: its readings need repeats that agree.
-        lengths
-            .into_iter()
-            .filter_map(|n| build(crate::trellis::segment_frames(&llr, &env_plan, Some(n))))
-            .filter(|p| p.frames.len() >= 2)
-            .max_by_key(|p| (p.frames.len(), std::cmp::Reverse(p.corrected_bits)))
+        // The likeliest reading wins. A trellis lays perfect widths by construction, so a
+        // single clean-looking frame proves nothing: its readings need repeats that agree.
+        let mut best: Option<(f64, PressDecode)> = None;
+        for n in lengths {
+            let r = crate::trellis::segment_frames(llr, &env_plan, Some(n));
+            if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+                eprintln!(
+                    "  trellis {line_code} {:?} gap {:.1} unit {:.1}: {n} bits, score {:.1}, {} frames",
+                    env_plan.symbols.iter().map(|s| (s.mark, s.space)).collect::<Vec<_>>(),
+                    env_plan.gap_min,
+                    env_plan.unit,
+                    r.score,
+                    r.frames.len()
+                );
+            }
+            if best.as_ref().is_some_and(|b| b.0 >= r.score) {
+                continue;
+            }
+            // Fit: the mean llr under the reading's marks and under the spaces inside its
+            // frames, against half the distance between the levels. A plan that does not
+            // match the code straddles marks and spaces and fits neither.
+            let (mut on, mut n_on, mut off, mut n_off) = (0.0f64, 0usize, 0.0f64, 0usize);
+            for f in &r.frames {
+                for k in f.first_mark..=f.last_mark {
+                    let (x, y) = r.marks[k];
+                    let (x, y) = (x as usize, (y as usize).min(llr.len()));
+                    on += llr[x..y.max(x)].iter().map(|&v| v as f64).sum::<f64>();
+                    n_on += y.saturating_sub(x);
+                    if k < f.last_mark {
+                        let z = (r.marks[k + 1].0 as usize).min(llr.len());
+                        off += llr[y..z.max(y)].iter().map(|&v| v as f64).sum::<f64>();
+                        n_off += z.saturating_sub(y);
+                    }
+                }
+            }
+            let half = 0.5 * (win.carrier - idle);
+            let fit = (on / n_on.max(1) as f64).min(-off / n_off.max(1) as f64) / half;
+            if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+                eprintln!("    fit {fit:.2}");
+            }
+            if fit < MIN_TRELLIS_FIT {
+                continue;
+            }
+            if let Some(p) = build(&r.marks).filter(|p| p.frames.len() >= 2) {
+                best = Some((r.score, p));
+            }
+        }
+        best
     }
 
     fn route_marks(&mut self) {
@@ -666,6 +706,70 @@ fn better(a: Option<PressDecode>, b: Option<PressDecode>) -> Option<PressDecode>
         (a, b) => a.or(b),
     }
 }
+
+/// The envelope window of one burst the trellis searches, with its levels.
+#[derive(Clone, Copy)]
+struct TrellisWindow<'a> {
+    /// Envelope index of `env[0]`.
+    a: u64,
+    /// `env` as a range of the history.
+    lo: usize,
+    hi: usize,
+    env: &'a [f32],
+    llr: &'a [f32],
+    idle: f64,
+    carrier: f64,
+    spread: f64,
+}
+
+/// Idle and carrier levels of a burst's envelope and the idle spread: the envelope averaged
+/// over about a unit (`2·half + 1` samples) splits into two classes at the cut that maximises
+/// the between-class variance (Otsu's method); the class means of the raw samples on either
+/// side are the levels. `None` when the envelope shows no two levels.
+fn two_levels(env: &[f32], half: usize) -> Option<(f64, f64, f64)> {
+    if env.len() < 16 {
+        return None;
+    }
+    let smooth = centred_average(env, half.max(1));
+    let mut sorted = smooth.clone();
+    sorted.sort_by(f32::total_cmp);
+    let n = sorted.len() as f64;
+    let total: f64 = sorted.iter().map(|&x| x as f64).sum();
+    let (mut acc, mut best) = (0.0f64, (f64::MIN, sorted[0]));
+    for k in 1..sorted.len() {
+        acc += sorted[k - 1] as f64;
+        let n0 = k as f64;
+        let m0 = acc / n0;
+        let m1 = (total - acc) / (n - n0);
+        let between = n0 * (n - n0) * (m1 - m0).powi(2);
+        if between > best.0 {
+            best = (between, sorted[k]);
+        }
+    }
+    let cut = best.1;
+    let (mut s0, mut q0, mut c0, mut s1, mut c1) = (0.0f64, 0.0f64, 0usize, 0.0f64, 0usize);
+    for (&x, &m) in env.iter().zip(&smooth) {
+        if m < cut {
+            s0 += x as f64;
+            q0 += (x as f64).powi(2);
+            c0 += 1;
+        } else {
+            s1 += x as f64;
+            c1 += 1;
+        }
+    }
+    if c0 < 8 || c1 < 8 {
+        return None;
+    }
+    let (idle, carrier) = (s0 / c0 as f64, s1 / c1 as f64);
+    let spread = (q0 / c0 as f64 - idle * idle).max(0.0).sqrt();
+    (carrier > idle).then_some((idle, carrier, spread))
+}
+
+/// Lowest fit of a trellis reading: the mean log-likelihood ratio under its marks, and minus
+/// that under the spaces inside its frames, as a fraction of half the level difference (1 for
+/// a reading that lays every mark and space where they are).
+const MIN_TRELLIS_FIT: f64 = 0.9;
 
 /// Smoothing widths (µs) the trellis stage reads timing plans from, besides the first and
 /// second passes' marks.

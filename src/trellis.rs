@@ -48,9 +48,12 @@
 //!     closing: Some(1.0),
 //!     gap_min: 6.0,
 //! };
-//! let marks = segment(&llr, &plan);
-//! assert_eq!(marks.len(), 10);
-//! assert_eq!(marks[0], (40.0, 64.0));
+//! let reading = segment(&llr, &plan);
+//! assert_eq!(reading.marks.len(), 10);
+//! assert_eq!(reading.marks[0], (40.0, 64.0));
+//! assert_eq!(reading.frames.len(), 2);
+//! assert_eq!(reading.frames[1].bits, [true, false, true, true]);
+//! assert_eq!((reading.frames[1].first_mark, reading.frames[1].last_mark), (5, 9));
 //! ```
 
 /// One data symbol of a plan: a mark and the space after it, in units, and the bit it carries.
@@ -134,18 +137,17 @@ impl States {
     }
 }
 
-/// The most likely marks of `llr` (one log-likelihood ratio per envelope sample) under
-/// `plan`, as (rise, fall) envelope-sample positions, in time order. Frames hold exactly
-/// `bits` data bits when given, at least [`crate::frames::MIN_BITS`] otherwise. Empty when no
-/// sequence scores above the all-space reading or the burst is too long to search.
-pub fn segment(llr: &[f32], plan: &Plan) -> Vec<(f64, f64)> {
+/// The most likely reading of `llr` (one log-likelihood ratio per envelope sample) under
+/// `plan`: frames of at least [`crate::frames::MIN_BITS`] bits. Empty when no sequence scores
+/// above the all-space reading or the burst is too long to search.
+pub fn segment(llr: &[f32], plan: &Plan) -> Reading {
     segment_frames(llr, plan, None)
 }
 
 /// [`segment`] with frames of exactly `bits` data bits when `bits` is given.
-pub fn segment_frames(llr: &[f32], plan: &Plan, bits: Option<usize>) -> Vec<(f64, f64)> {
+pub fn segment_frames(llr: &[f32], plan: &Plan, bits: Option<usize>) -> Reading {
     if !(plan.unit.is_finite() && plan.unit >= 1.0) || plan.symbols.is_empty() || llr.is_empty() {
-        return Vec::new();
+        return Reading::default();
     }
     let st = States {
         k: bits.unwrap_or(crate::frames::MIN_BITS).max(1),
@@ -154,7 +156,7 @@ pub fn segment_frames(llr: &[f32], plan: &Plan, bits: Option<usize>) -> Vec<(f64
     };
     let ns = st.count();
     if ns >= u16::MAX as usize {
-        return Vec::new();
+        return Reading::default();
     }
     // Grid of `bin` samples: about an eighth of a unit (coarser for long bursts), at least one
     // sample.
@@ -167,7 +169,7 @@ pub fn segment_frames(llr: &[f32], plan: &Plan, bits: Option<usize>) -> Vec<(f64
         steps -= 1.0;
     }
     if !fits(steps) {
-        return Vec::new();
+        return Reading::default();
     }
     let bin = (plan.unit / steps).floor().max(1.0) as usize;
     let n = llr.len().div_ceil(bin);
@@ -331,15 +333,31 @@ pub fn segment_frames(llr: &[f32], plan: &Plan, bits: Option<usize>) -> Vec<(f64
         }
     }
 
-    // Walk back, collecting marks: every transition into H, C or an E state ends a mark.
+    // Walk back, collecting marks (every transition into H, C or an E state ends one) and
+    // frames (a transition into A from a frame end closes one).
     let first_e = st.e(0, 1);
     let mut marks = Vec::new();
+    let mut frames: Vec<FrameSpan> = Vec::new();
+    let mut open = FrameSpan::default();
+    let mut in_frame = false;
     let mut cur = best_final.1;
     let mut guard = 0usize;
     while cur.state != u16::MAX && guard <= ns * (n + 1) {
         guard += 1;
         let (s, pos) = (cur.state as usize, cur.pos as usize);
         let prev = back[idx(s, pos)];
+        if !in_frame && s != States::A {
+            in_frame = true;
+            open = FrameSpan {
+                last_mark: marks.len(),
+                ..FrameSpan::default()
+            };
+        }
+        if s == States::A && in_frame {
+            open.first_mark = marks.len().saturating_sub(1);
+            frames.push(std::mem::take(&mut open));
+            in_frame = false;
+        }
         if prev.state == u16::MAX {
             break;
         }
@@ -349,30 +367,149 @@ pub fn segment_frames(llr: &[f32], plan: &Plan, bits: Option<usize>) -> Vec<(f64
                 ((pos * bin).min(llr.len())) as f64,
             ));
         }
+        if s >= first_e {
+            open.bits.push(plan.symbols[(s - first_e) / st.k].bit);
+        }
         cur = prev;
     }
+    if in_frame && !marks.is_empty() {
+        open.first_mark = marks.len() - 1;
+        frames.push(open);
+    }
     marks.reverse();
-    marks
+    let last = marks.len().saturating_sub(1);
+    let mut frames: Vec<FrameSpan> = frames
+        .into_iter()
+        .rev()
+        .map(|mut f| {
+            f.bits.reverse();
+            FrameSpan {
+                first_mark: last - f.first_mark,
+                last_mark: last - f.last_mark,
+                bits: f.bits,
+            }
+        })
+        .collect();
+    frames.retain(|f| f.first_mark <= f.last_mark);
+    Reading {
+        score: best_final.0 as f64,
+        marks,
+        frames,
+    }
 }
 
-/// The timing plan of a burst's marks (capture or envelope samples alike; glitches merged as
-/// [`crate::frames`] does) under its best line-code hypothesis, in the same samples, with the line code. PWM and PPM only (the
-/// codes whose symbols are a mark and a space); `None` for other codes or widths that do not
-/// round to a consistent plan.
-pub fn plan_of(marks: &[crate::edges::Mark]) -> Option<PlanReading> {
-    use crate::coding::{assess, BurstFrames, LineCode};
-    use crate::timing::{median, split_two};
+/// `plan` with its unit replaced by the one, within `±span` (a fraction) of it in steps of
+/// `step`, whose free search ([`segment`]) scores best: a unit measured from noisy marks is
+/// off by several percent, and every frame's length multiplies the error.
+pub fn fit_unit(llr: &[f32], plan: &Plan, span: f64, step: f64) -> Plan {
+    let mut best = (segment(llr, plan).score, plan.unit);
+    if step > 0.0 && span > 0.0 {
+        let k = (span / step).round() as i32;
+        for i in -k..=k {
+            if i == 0 {
+                continue;
+            }
+            let unit = plan.unit * (1.0 + i as f64 * step);
+            let trial = Plan {
+                unit,
+                ..plan.clone()
+            };
+            let sc = segment(llr, &trial).score;
+            if sc > best.0 {
+                best = (sc, unit);
+            }
+        }
+    }
+    Plan {
+        unit: best.1,
+        ..plan.clone()
+    }
+}
+
+/// One frame of a [`Reading`].
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct FrameSpan {
+    /// Index of its first mark (header included) in [`Reading::marks`].
+    pub first_mark: usize,
+    /// Index of its last mark (closing mark included).
+    pub last_mark: usize,
+    /// Its data bits.
+    pub bits: Vec<bool>,
+}
+
+/// The best symbol sequence of a burst.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Reading {
+    /// Its log-likelihood ratio against the all-space reading (the sum of the llr under its
+    /// marks); 0 when empty.
+    pub score: f64,
+    /// Its marks as (rise, fall) envelope-sample positions, in time order.
+    pub marks: Vec<(f64, f64)>,
+    /// Its frames, in time order.
+    pub frames: Vec<FrameSpan>,
+}
+
+impl Reading {
+    /// The most common frame length in bits (ties: the longer); `None` without frames.
+    pub fn modal_bits(&self) -> Option<usize> {
+        let mut counts: Vec<(usize, usize)> = Vec::new();
+        for f in &self.frames {
+            match counts.iter_mut().find(|c| c.0 == f.bits.len()) {
+                Some(c) => c.1 += 1,
+                None => counts.push((f.bits.len(), 1)),
+            }
+        }
+        counts
+            .into_iter()
+            .max_by_key(|&(len, n)| (n, len))
+            .map(|c| c.0)
+    }
+}
+
+/// The timing plans of a burst's marks (capture or envelope samples alike; glitches merged
+/// as [`crate::frames`] does) under each of its line-code hypotheses that has one, best
+/// score first, in the same samples. PWM and PPM only (the codes whose symbols are a mark
+/// and a space); hypotheses whose widths do not round to a consistent plan are skipped.
+pub fn plans_of(marks: &[crate::edges::Mark]) -> Vec<PlanReading> {
+    use crate::coding::{assess, BurstFrames};
     let mut cleaned = marks.to_vec();
     crate::bursts::merge_glitches(&mut cleaned, crate::frames::GLITCH_FRACTION);
     let marks = &cleaned[..];
     let candidates = assess(marks);
-    let best = candidates.first()?;
-    let runner_up = candidates.get(1).map(|c| (c.line_code, c.score));
+    let bf = BurstFrames::new(marks);
+    candidates
+        .iter()
+        .enumerate()
+        .flat_map(|(i, c)| {
+            let runner_up = candidates
+                .iter()
+                .enumerate()
+                .find(|&(j, _)| j != i)
+                .map(|(_, o)| (o.line_code, o.score));
+            plan_for(c, &bf)
+                .unwrap_or_default()
+                .into_iter()
+                .map(move |plan| PlanReading {
+                    line_code: c.line_code,
+                    score: c.score,
+                    runner_up,
+                    plan,
+                })
+        })
+        .collect()
+}
+
+/// The plan of one line-code hypothesis of a framed burst.
+fn plan_for(
+    best: &crate::coding::Candidate,
+    bf: &crate::coding::BurstFrames<'_>,
+) -> Option<Vec<Plan>> {
+    use crate::coding::LineCode;
+    use crate::timing::{median, split_two};
     let u = best.unit;
     if !(u.is_finite() && u > 0.0) {
         return None;
     }
-    let bf = BurstFrames::new(marks);
     let units = |x: f64| (x / u).round();
     let closing = best.layout.closing_mark.map(|c| units(c).max(1.0));
     let (mut widths, mut spaces, mut periods) = (Vec::new(), Vec::new(), Vec::new());
@@ -396,26 +533,38 @@ pub fn plan_of(marks: &[crate::edges::Mark]) -> Option<PlanReading> {
             }
         }
     }
-    let symbols = match best.line_code {
+    let shapes: Vec<Vec<Symbol>> = match best.line_code {
         LineCode::Pwm => {
+            // The long mark as the short bit's space (common practice: 1:3/3:1, 1:2/2:1),
+            // which noise-split long marks cannot mislead; the measured long mark when it
+            // differs comes as a second plan.
             let (short, long) = split_two(&widths)?;
             let (a, b) = (units(short.mean).max(1.0), units(long.mean));
             let p = units(median(&periods));
-            if !(b > a && p > b) {
+            if p - a <= a {
                 return None;
             }
-            vec![
-                Symbol {
-                    mark: a,
-                    space: p - a,
-                    bit: false,
-                },
-                Symbol {
-                    mark: b,
-                    space: p - b,
-                    bit: true,
-                },
-            ]
+            let mut shapes = vec![p - a];
+            if b > a && b < p && b != p - a {
+                shapes.push(b);
+            }
+            shapes
+                .into_iter()
+                .map(|b| {
+                    vec![
+                        Symbol {
+                            mark: a,
+                            space: p - a,
+                            bit: false,
+                        },
+                        Symbol {
+                            mark: b,
+                            space: p - b,
+                            bit: true,
+                        },
+                    ]
+                })
+                .collect::<Vec<_>>()
         }
         LineCode::Ppm => {
             let m = units(median(&widths)).max(1.0);
@@ -424,7 +573,7 @@ pub fn plan_of(marks: &[crate::edges::Mark]) -> Option<PlanReading> {
             if b <= a {
                 return None;
             }
-            vec![
+            vec![vec![
                 Symbol {
                     mark: m,
                     space: a,
@@ -435,7 +584,7 @@ pub fn plan_of(marks: &[crate::edges::Mark]) -> Option<PlanReading> {
                     space: b,
                     bit: true,
                 },
-            ]
+            ]]
         }
         _ => return None,
     };
@@ -443,26 +592,30 @@ pub fn plan_of(marks: &[crate::edges::Mark]) -> Option<PlanReading> {
         .layout
         .header
         .map(|(m, s)| (units(m).max(1.0), units(s).max(1.0)));
-    let longest = symbols
+    let longest = shapes
         .iter()
+        .flatten()
         .map(|s| s.space.max(s.mark))
         .fold(0.0, f64::max);
+    // Frames part at a space clearly longer than any inside them; a measured gap tightens
+    // that, but a noisy one (stray marks read as very long gaps) must not stop frames from
+    // parting at all.
     let gap_min = match best.layout.gap {
-        Some(g) => (0.6 * g / u).max(longest + 2.0),
+        Some(g) => (0.6 * g / u).min(2.0 * longest + 4.0).max(longest + 2.0),
         None => longest + 3.0,
     };
-    Some(PlanReading {
-        line_code: best.line_code,
-        score: best.score,
-        runner_up,
-        plan: Plan {
-            unit: u,
-            symbols,
-            header,
-            closing,
-            gap_min,
-        },
-    })
+    Some(
+        shapes
+            .into_iter()
+            .map(|symbols| Plan {
+                unit: u,
+                symbols,
+                header,
+                closing,
+                gap_min,
+            })
+            .collect(),
+    )
 }
 
 /// A timing plan with the line-code evidence it was read from.
@@ -531,7 +684,7 @@ mod tests {
         let bits = [true, false, false, true, true, false, true, false];
         let env = pwm_env(&bits, 16, 3, 0.0, 1);
         let llr: Vec<f32> = env.iter().map(|x| x - 0.5).collect();
-        let marks = segment(&llr, &pwm_plan(16.0));
+        let marks = segment(&llr, &pwm_plan(16.0)).marks;
         assert_eq!(marks.len(), 3 * 9);
         let got = bits_of(&marks[..8], 16.0);
         assert_eq!(got, bits);
@@ -546,7 +699,7 @@ mod tests {
         ];
         let env = pwm_env(&bits, 24, 2, 1.0, 7);
         let llr: Vec<f32> = env.iter().map(|x| x - 0.5).collect();
-        let marks = segment_frames(&llr, &pwm_plan(24.0), Some(12));
+        let marks = segment_frames(&llr, &pwm_plan(24.0), Some(12)).marks;
         assert_eq!(marks.len(), 2 * 13, "{marks:?}");
         assert_eq!(bits_of(&marks[..12], 24.0), bits);
         assert_eq!(bits_of(&marks[13..25], 24.0), bits);
@@ -559,7 +712,7 @@ mod tests {
         ];
         let env = pwm_env(&bits, 16, 3, 0.35, 11);
         let llr: Vec<f32> = env.iter().map(|x| x - 0.5).collect();
-        let marks = segment(&llr, &pwm_plan(16.0));
+        let marks = segment(&llr, &pwm_plan(16.0)).marks;
         assert_eq!(marks.len(), 3 * 11, "{marks:?}");
         for f in 0..3 {
             assert_eq!(bits_of(&marks[11 * f..11 * f + 10], 16.0), bits);
@@ -572,7 +725,7 @@ mod tests {
         let llr: Vec<f32> = (0..20_000)
             .map(|_| 0.3 * rng.gauss() as f32 - 0.5)
             .collect();
-        assert!(segment(&llr, &pwm_plan(16.0)).is_empty());
+        assert!(segment(&llr, &pwm_plan(16.0)).marks.is_empty());
     }
 
     #[test]
@@ -594,7 +747,7 @@ mod tests {
             env.extend(std::iter::repeat_n(0.0, (31.0 * unit).round() as usize));
         }
         let llr: Vec<f32> = env.iter().map(|x| x - 0.5).collect();
-        let marks = segment(&llr, &pwm_plan(20.0));
+        let marks = segment(&llr, &pwm_plan(20.0)).marks;
         assert_eq!(marks.len(), 39);
         for f in 0..3 {
             assert_eq!(bits_of(&marks[13 * f..13 * f + 12], 20.0), bits);
@@ -640,7 +793,7 @@ mod tests {
             closing: Some(1.0),
             gap_min: 10.0,
         };
-        let marks = segment_frames(&llr, &plan, Some(8));
+        let marks = segment_frames(&llr, &plan, Some(8)).marks;
         assert_eq!(marks.len(), 2 * 10, "{marks:?}");
         let spaces: Vec<bool> = marks[1..9]
             .windows(2)
