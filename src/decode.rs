@@ -101,8 +101,8 @@ pub struct Decoder {
     presses: Vec<PressDecode>,
     /// Envelope kept for the second pass: from shortly before the open burst (or the last
     /// `margin` samples when none is open). `hist[0]` is envelope sample `hist_start`.
-    hist: Vec<f32>,
-    lag_hist: Vec<Complex32>,
+    hist: History<f32>,
+    lag_hist: History<Complex32>,
     hist_start: u64,
     margin: usize,
     max_hist: usize,
@@ -167,8 +167,8 @@ impl Decoder {
             marks: Vec::new(),
             closed: Vec::new(),
             presses: Vec::new(),
-            hist: Vec::new(),
-            lag_hist: Vec::new(),
+            hist: History::default(),
+            lag_hist: History::default(),
             hist_start: 0,
             margin: (env_rate * 0.025) as usize + 16,
             max_hist: (env_rate * 4.0) as usize + 4096,
@@ -223,9 +223,9 @@ impl Decoder {
         let keep_from = keep_from.min(self.hist_start + self.hist.len() as u64);
         if keep_from > self.hist_start {
             let n = ((keep_from - self.hist_start) as usize).min(self.hist.len());
-            self.hist.drain(..n);
+            self.hist.drop_front(n);
             let nl = n.min(self.lag_hist.len());
-            self.lag_hist.drain(..nl);
+            self.lag_hist.drop_front(nl);
             self.hist_start += n as u64;
         }
     }
@@ -414,6 +414,48 @@ impl Decoder {
             notes: self.notes,
             caution: CAUTION.to_string(),
         }
+    }
+}
+
+/// A sample history that drops from the front in amortised constant time: dropped samples
+/// are only skipped, and the live ones move to the front of the buffer once the skipped
+/// part is at least as long as they are (dropping with `Vec::drain` moved the whole live
+/// history on every block). Reads see the live samples as a slice.
+#[derive(Debug, Clone)]
+struct History<T> {
+    buf: Vec<T>,
+    /// Samples at the front of `buf` already dropped.
+    skip: usize,
+}
+
+impl<T> Default for History<T> {
+    fn default() -> Self {
+        History {
+            buf: Vec::new(),
+            skip: 0,
+        }
+    }
+}
+
+impl<T: Copy> History<T> {
+    fn extend_from_slice(&mut self, v: &[T]) {
+        self.buf.extend_from_slice(v);
+    }
+
+    /// Drops the `n` oldest live samples (all of them when fewer are held).
+    fn drop_front(&mut self, n: usize) {
+        self.skip = (self.skip + n).min(self.buf.len());
+        if self.skip >= 4096 && self.skip >= self.buf.len() - self.skip {
+            self.buf.drain(..self.skip);
+            self.skip = 0;
+        }
+    }
+}
+
+impl<T> std::ops::Deref for History<T> {
+    type Target = [T];
+    fn deref(&self) -> &[T] {
+        self.buf.get(self.skip..).unwrap_or(&[])
     }
 }
 
