@@ -98,6 +98,9 @@ pub struct EdgeDetector {
     ring: Vec<f32>,
     /// Samples of history the detector looks back on (`cfg.history`, at least 4).
     hist_len: usize,
+    /// `1 / cfg.floor_tau` and `1 − 1 / cfg.level_tau`, worked out once.
+    floor_step: f32,
+    level_decay: f32,
     in_mark: bool,
     det: u64,
     rise_buf: Vec<f32>,
@@ -119,6 +122,8 @@ impl EdgeDetector {
         EdgeDetector {
             ring: vec![0.0; k.next_power_of_two()],
             hist_len: k,
+            floor_step: 1.0 / cfg.floor_tau,
+            level_decay: 1.0 - 1.0 / cfg.level_tau,
             rise_buf: Vec::with_capacity(2 * k),
             cfg,
             idx: 0,
@@ -216,7 +221,7 @@ impl EdgeDetector {
         // learnt from the samples below the floor alone. Neither can then be pulled up by
         // signal until it hides itself. Only a drop far below the floor (a capture that began
         // inside a mark) is followed at once.
-        let a = 1.0 / self.cfg.floor_tau;
+        let a = self.floor_step;
         let sigma = self.sigma().max(1e-9);
         let d = x - self.floor;
         if d < -4.0 * sigma {
@@ -227,7 +232,7 @@ impl EdgeDetector {
                 self.dev += a * (-d - self.dev);
             }
         }
-        self.recent_level *= 1.0 - 1.0 / self.cfg.level_tau;
+        self.recent_level *= self.level_decay;
         false
     }
 
