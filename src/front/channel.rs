@@ -594,7 +594,10 @@ impl Channelizer {
             let span = self.hist_pos..self.hist_pos + l2;
             let re = self.hist_re.get(span.clone()).unwrap_or(&[]);
             let im = self.hist_im.get(span).unwrap_or(&[]);
-            emit(Complex32::new(dot_ragged(&self.taps, re), dot_ragged(&self.taps, im)));
+            emit(Complex32::new(
+                dot_ragged(&self.taps, re),
+                dot_ragged(&self.taps, im),
+            ));
             self.produced += 1;
         }
     }
