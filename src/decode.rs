@@ -101,8 +101,8 @@ pub struct Decoder {
     presses: Vec<PressDecode>,
     /// Envelope kept for the second pass: from shortly before the open burst (or the last
     /// `margin` samples when none is open). `hist[0]` is envelope sample `hist_start`.
-    hist: Vec<f32>,
-    lag_hist: Vec<Complex32>,
+    hist: History<f32>,
+    lag_hist: History<Complex32>,
     hist_start: u64,
     margin: usize,
     max_hist: usize,
@@ -167,8 +167,8 @@ impl Decoder {
             marks: Vec::new(),
             closed: Vec::new(),
             presses: Vec::new(),
-            hist: Vec::new(),
-            lag_hist: Vec::new(),
+            hist: History::default(),
+            lag_hist: History::default(),
             hist_start: 0,
             margin: (env_rate * 0.025) as usize + 16,
             max_hist: (env_rate * 4.0) as usize + 4096,
@@ -223,9 +223,9 @@ impl Decoder {
         let keep_from = keep_from.min(self.hist_start + self.hist.len() as u64);
         if keep_from > self.hist_start {
             let n = ((keep_from - self.hist_start) as usize).min(self.hist.len());
-            self.hist.drain(..n);
+            self.hist.drop_front(n);
             let nl = n.min(self.lag_hist.len());
-            self.lag_hist.drain(..nl);
+            self.lag_hist.drop_front(nl);
             self.hist_start += n as u64;
         }
     }
@@ -671,6 +671,48 @@ impl Decoder {
     }
 }
 
+/// A sample history that drops from the front in amortised constant time: dropped samples
+/// are only skipped, and the live ones move to the front of the buffer once the skipped
+/// part is at least as long as they are (dropping with `Vec::drain` moved the whole live
+/// history on every block). Reads see the live samples as a slice.
+#[derive(Debug, Clone)]
+struct History<T> {
+    buf: Vec<T>,
+    /// Samples at the front of `buf` already dropped.
+    skip: usize,
+}
+
+impl<T> Default for History<T> {
+    fn default() -> Self {
+        History {
+            buf: Vec::new(),
+            skip: 0,
+        }
+    }
+}
+
+impl<T: Copy> History<T> {
+    fn extend_from_slice(&mut self, v: &[T]) {
+        self.buf.extend_from_slice(v);
+    }
+
+    /// Drops the `n` oldest live samples (all of them when fewer are held).
+    fn drop_front(&mut self, n: usize) {
+        self.skip = (self.skip + n).min(self.buf.len());
+        if self.skip >= 4096 && self.skip >= self.buf.len() - self.skip {
+            self.buf.drain(..self.skip);
+            self.skip = 0;
+        }
+    }
+}
+
+impl<T> std::ops::Deref for History<T> {
+    type Target = [T];
+    fn deref(&self) -> &[T] {
+        self.buf.get(self.skip..).unwrap_or(&[])
+    }
+}
+
 /// A centred moving average of `2·half + 1` samples (shorter at the ends).
 fn centred_average(x: &[f32], half: usize) -> Vec<f32> {
     let n = x.len();
@@ -892,9 +934,7 @@ fn survey_with_mean_progress(
     while let Some(block) = src.next_block()? {
         if let Samples::Iq(iq) = block {
             survey.push(iq);
-            for z in iq {
-                sum += num_complex::Complex64::new(z.re as f64, z.im as f64);
-            }
+            sum += sum_iq(iq);
             n += iq.len() as u64;
             tick(n);
         }
@@ -904,6 +944,29 @@ fn survey_with_mean_progress(
         survey.finish(),
         num_complex::Complex32::new(mean.re as f32, mean.im as f32),
     ))
+}
+
+/// Σ z over a block in f64, in four interleaved partial sums (independent additions the CPU
+/// overlaps; one running sum waited on every addition). Used for the DC estimate, which is
+/// then rounded to f32: the different summation order moves it by ~1e-16 relative.
+fn sum_iq(iq: &[Complex32]) -> num_complex::Complex64 {
+    let mut re = [0f64; 4];
+    let mut im = [0f64; 4];
+    let mut quads = iq.chunks_exact(4);
+    for q in &mut quads {
+        for l in 0..4 {
+            re[l] += q[l].re as f64;
+            im[l] += q[l].im as f64;
+        }
+    }
+    for (l, z) in quads.remainder().iter().enumerate() {
+        re[l] += z.re as f64;
+        im[l] += z.im as f64;
+    }
+    num_complex::Complex64::new(
+        (re[0] + re[1]) + (re[2] + re[3]),
+        (im[0] + im[1]) + (im[2] + im[3]),
+    )
 }
 
 /// One channel per bursty carrier, strongest first: bandwidth twice the carrier's occupied
