@@ -566,6 +566,17 @@ impl Decoder {
                     self.info.rate.to_s(b.start())
                 ));
             }
+            if std::env::var_os("OOKSIFT_DEBUG_MARKS").is_some() {
+                for m in b.marks.iter().take(40) {
+                    eprintln!(
+                        "  mark {:.5} s width {:.1} µs level {:.4} noise {:.4}",
+                        self.info.rate.to_s(m.rise),
+                        self.info.rate.to_s(m.width()) * 1e6,
+                        m.level,
+                        m.noise
+                    );
+                }
+            }
             let first = frames::decode_press_with(&b, &self.press_opts);
             let (second, second_marks) = match self.reslice(&b) {
                 Some((p, m)) => (p, Some(m)),
