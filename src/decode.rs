@@ -588,7 +588,16 @@ impl Decoder {
                 .filter(|p| p.frames.len() >= 2)
                 .map(|p| p.bits.len())
                 .next();
-            let third = self.trellis_reading(&b, second_marks.as_deref(), known);
+            // A clean edge reading (every frame full and exact) leaves the trellis nothing to
+            // win: it replaces a reading only with more full frames or fewer corrections.
+            let clean = [&first, &second].into_iter().flatten().any(|p| {
+                p.frames.len() >= 2 && p.corrected_bits == 0 && p.partial_frames == 0
+            });
+            let third = if clean {
+                None
+            } else {
+                self.trellis_reading(&b, second_marks.as_deref(), known)
+            };
             if std::env::var_os("OOKSIFT_DEBUG").is_some() {
                 let d = |p: &Option<PressDecode>| {
                     p.as_ref().map(|p| {

@@ -398,23 +398,34 @@ pub fn segment_frames(llr: &[f32], plan: &Plan, bits: Option<usize>) -> Reading 
     }
 }
 
-/// `plan` with its unit replaced by the one, within `±span` (a fraction) of it in steps of
-/// `step`, whose free search ([`segment`]) scores best: a unit measured from noisy marks is
+/// `plan` with its unit replaced by the one, within `±span` (a fraction) of it to `step`
+/// (coarse steps of `2·step`, then refined), whose free search ([`segment`]) scores best: a unit measured from noisy marks is
 /// off by several percent, and every frame's length multiplies the error.
 pub fn fit_unit(llr: &[f32], plan: &Plan, span: f64, step: f64) -> Plan {
-    let mut best = (segment(llr, plan).score, plan.unit);
-    if step > 0.0 && span > 0.0 {
-        let k = (span / step).round() as i32;
-        for i in -k..=k {
-            if i == 0 {
-                continue;
-            }
-            let unit = plan.unit * (1.0 + i as f64 * step);
-            let trial = Plan {
+    let score_at = |unit: f64| {
+        segment(
+            llr,
+            &Plan {
                 unit,
                 ..plan.clone()
-            };
-            let sc = segment(llr, &trial).score;
+            },
+        )
+        .score
+    };
+    let mut best = (score_at(plan.unit), plan.unit);
+    if step > 0.0 && span > 0.0 {
+        // Coarse steps of twice `step`, then the two neighbours of the best at `step`.
+        let k = (span / (2.0 * step)).round() as i32;
+        for i in (-k..=k).filter(|&i| i != 0) {
+            let unit = plan.unit * (1.0 + 2.0 * step * i as f64);
+            let sc = score_at(unit);
+            if sc > best.0 {
+                best = (sc, unit);
+            }
+        }
+        let centre = best.1;
+        for unit in [centre * (1.0 - step), centre * (1.0 + step)] {
+            let sc = score_at(unit);
             if sc > best.0 {
                 best = (sc, unit);
             }
