@@ -590,9 +590,10 @@ impl Decoder {
                 .next();
             // A clean edge reading (every frame full and exact) leaves the trellis nothing to
             // win: it replaces a reading only with more full frames or fewer corrections.
-            let clean = [&first, &second].into_iter().flatten().any(|p| {
-                p.frames.len() >= 2 && p.corrected_bits == 0 && p.partial_frames == 0
-            });
+            let clean = [&first, &second]
+                .into_iter()
+                .flatten()
+                .any(|p| p.frames.len() >= 2 && p.corrected_bits == 0 && p.partial_frames == 0);
             let third = if clean {
                 None
             } else {
