@@ -347,13 +347,14 @@ impl Decoder {
         }
         // One window and one set of levels for every plan, so their likelihoods compare.
         let decim = self.env.decim();
-        let longest = plans
-            .iter()
-            .map(|p| p.0.plan.unit / decim)
-            .fold(0.0, f64::max);
         let first_unit = plans.first()?.0.plan.unit / decim;
         let a = (self.env_index(burst.start()).floor() as i64 - self.margin as i64).max(0) as u64;
-        let b = self.env_index(burst.end()).ceil() as u64 + (16.0 * longest).ceil() as u64;
+        // Sixteen units past the burst for marks the first pass missed at its end — in the
+        // units of the most trusted plan, never more than the burst is long (a plan read from
+        // noise may have an absurd unit).
+        let span = self.env_index(burst.end()) - self.env_index(burst.start());
+        let after = (16.0 * first_unit).min(span.max(0.0));
+        let b = self.env_index(burst.end()).ceil() as u64 + after.ceil() as u64;
         if a < self.hist_start {
             return None;
         }
@@ -379,16 +380,42 @@ impl Decoder {
             carrier,
             spread,
         };
+        // Every plan scored once by its free search; the likeliest few get their unit fitted
+        // and the exact-length searches (the costly part).
+        let mut ranked: Vec<(f64, crate::trellis::Plan, &crate::trellis::PlanReading)> = plans
+            .iter()
+            .filter_map(|(reading, _)| {
+                let unit = reading.plan.unit / decim;
+                (unit >= 2.0).then(|| {
+                    let plan = crate::trellis::Plan {
+                        unit,
+                        ..reading.plan.clone()
+                    };
+                    (crate::trellis::segment(&llr, &plan).score, plan, reading)
+                })
+            })
+            .collect();
+        ranked.sort_by(|x, y| y.0.total_cmp(&x.0));
+        ranked.truncate(TRELLIS_EXACT_PLANS);
+        let fitted: Vec<(crate::trellis::Plan, &crate::trellis::PlanReading)> = ranked
+            .into_iter()
+            .map(|(_, plan, reading)| {
+                (
+                    crate::trellis::fit_unit(&llr, &plan, 0.15, 0.025).0,
+                    reading,
+                )
+            })
+            .collect();
         // Plans compete by the likelihood of their best readings.
         let mut best: Option<(f64, PressDecode)> = None;
-        for (reading, _) in plans {
+        for (plan, reading) in fitted {
             let r = self
-                .trellis_with(burst, &win, reading.plan, reading.line_code, known_bits)
+                .trellis_with(burst, &win, plan, reading.line_code, known_bits)
                 .map(|(score, mut p)| {
                     // The line-code evidence is the widths the plan was read from; the
                     // trellis's own widths fit the plan by construction.
                     p.score = reading.score;
-                    p.runner_up = reading.runner_up;
+                    p.runner_up = reading.runner_up.clone();
                     (score, p)
                 });
             if std::env::var_os("OOKSIFT_DEBUG").is_some() {
@@ -414,14 +441,10 @@ impl Decoder {
         &self,
         burst: &Burst,
         win: &TrellisWindow<'_>,
-        plan: crate::trellis::Plan,
+        env_plan: crate::trellis::Plan,
         line_code: coding::LineCode,
         known_bits: Option<usize>,
     ) -> Option<(f64, PressDecode)> {
-        let unit_env = plan.unit / self.env.decim();
-        if unit_env < 2.0 {
-            return None;
-        }
         let TrellisWindow {
             a,
             lo,
@@ -433,15 +456,6 @@ impl Decoder {
             ..
         } = *win;
         let mean = |v: &[f32]| v.iter().map(|&x| x as f64).sum::<f64>() / v.len() as f64;
-        let env_plan = crate::trellis::fit_unit(
-            llr,
-            &crate::trellis::Plan {
-                unit: unit_env,
-                ..plan
-            },
-            0.15,
-            0.025,
-        );
         let lag = &self.lag_hist;
         let build = |spans: &[(f64, f64)]| -> Option<PressDecode> {
             if spans.is_empty() {
@@ -594,7 +608,13 @@ impl Decoder {
                 .into_iter()
                 .flatten()
                 .any(|p| p.frames.len() >= 2 && p.corrected_bits == 0 && p.partial_frames == 0);
-            let third = if clean {
+            // Nor a burst the edges read as another line code with repeats: the trellis knows
+            // PWM and PPM only (a neighbour's keying sidebands often read as Manchester).
+            let other_code = [&first, &second].into_iter().flatten().any(|p| {
+                p.frames.len() >= 2
+                    && !matches!(p.line_code, coding::LineCode::Pwm | coding::LineCode::Ppm)
+            });
+            let third = if clean || other_code || std::env::var_os("OOKSIFT_NO_TRELLIS").is_some() {
                 None
             } else {
                 self.trellis_reading(&b, second_marks.as_deref(), known)
@@ -828,6 +848,9 @@ fn two_levels(env: &[f32], half: usize) -> Option<(f64, f64, f64)> {
     let spread = (q0 / c0 as f64 - idle * idle).max(0.0).sqrt();
     (carrier > idle).then_some((idle, carrier, spread))
 }
+
+/// Plans (the likeliest by their free search) that get the exact-length searches.
+const TRELLIS_EXACT_PLANS: usize = 3;
 
 /// Lowest fit of a trellis reading: the mean log-likelihood ratio under its marks, and minus
 /// that under the spaces inside its frames, as a fraction of half the level difference (1 for

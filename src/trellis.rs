@@ -399,9 +399,10 @@ pub fn segment_frames(llr: &[f32], plan: &Plan, bits: Option<usize>) -> Reading 
 }
 
 /// `plan` with its unit replaced by the one, within `±span` (a fraction) of it to `step`
-/// (coarse steps of `2·step`, then refined), whose free search ([`segment`]) scores best: a unit measured from noisy marks is
+/// (coarse steps of `2·step`, then refined), whose free search ([`segment`]) scores best, and
+/// that score: a unit measured from noisy marks is
 /// off by several percent, and every frame's length multiplies the error.
-pub fn fit_unit(llr: &[f32], plan: &Plan, span: f64, step: f64) -> Plan {
+pub fn fit_unit(llr: &[f32], plan: &Plan, span: f64, step: f64) -> (Plan, f64) {
     let score_at = |unit: f64| {
         segment(
             llr,
@@ -431,10 +432,13 @@ pub fn fit_unit(llr: &[f32], plan: &Plan, span: f64, step: f64) -> Plan {
             }
         }
     }
-    Plan {
-        unit: best.1,
-        ..plan.clone()
-    }
+    (
+        Plan {
+            unit: best.1,
+            ..plan.clone()
+        },
+        best.0,
+    )
 }
 
 /// One frame of a [`Reading`].
