@@ -415,7 +415,7 @@ impl Decoder {
                     // The line-code evidence is the widths the plan was read from; the
                     // trellis's own widths fit the plan by construction.
                     p.score = reading.score;
-                    p.runner_up = reading.runner_up.clone();
+                    p.runner_up = reading.runner_up;
                     (score, p)
                 });
             if std::env::var_os("OOKSIFT_DEBUG").is_some() {
