@@ -313,10 +313,11 @@ impl Decoder {
         Some(marks)
     }
 
-    /// Third reading of one burst: the most likely symbol sequence under the burst's timing
-    /// plan ([`crate::trellis`]), laid on the envelope history. The plan comes from the
-    /// second pass's marks when they read as PWM or PPM, else from the first pass's; frames
-    /// are searched first with free lengths, then again with the modal length.
+    /// Third reading of one burst: the most likely symbol sequence under one of the burst's
+    /// timing plans ([`crate::trellis`]), laid on the envelope history. Plans come from every
+    /// PWM/PPM hypothesis of the second pass's marks, the first pass's and a smoothing
+    /// ladder; all share one window and one pair of levels, the likeliest few are searched
+    /// with free and then exact frame lengths, and the likeliest reading that fits wins.
     fn trellis_reading(
         &self,
         burst: &Burst,
@@ -337,17 +338,17 @@ impl Decoder {
                 bases.push(m);
             }
         }
-        let mut plans: Vec<(crate::trellis::PlanReading, usize)> = Vec::new();
-        for (i, m) in bases.iter().enumerate() {
+        let mut plans: Vec<crate::trellis::PlanReading> = Vec::new();
+        for m in &bases {
             for p in crate::trellis::plans_of(m) {
-                if !plans.iter().any(|q| same_plan(&q.0.plan, &p.plan)) {
-                    plans.push((p, i));
+                if !plans.iter().any(|q| same_plan(&q.plan, &p.plan)) {
+                    plans.push(p);
                 }
             }
         }
         // One window and one set of levels for every plan, so their likelihoods compare.
         let decim = self.env.decim();
-        let first_unit = plans.first()?.0.plan.unit / decim;
+        let first_unit = plans.first()?.plan.unit / decim;
         let a = (self.env_index(burst.start()).floor() as i64 - self.margin as i64).max(0) as u64;
         // Sixteen units past the burst for marks the first pass missed at its end — in the
         // units of the most trusted plan, never more than the burst is long (a plan read from
@@ -384,7 +385,7 @@ impl Decoder {
         // and the exact-length searches (the costly part).
         let mut ranked: Vec<(f64, crate::trellis::Plan, &crate::trellis::PlanReading)> = plans
             .iter()
-            .filter_map(|(reading, _)| {
+            .filter_map(|reading| {
                 let unit = reading.plan.unit / decim;
                 (unit >= 2.0).then(|| {
                     let plan = crate::trellis::Plan {
@@ -528,25 +529,7 @@ impl Decoder {
             if best.as_ref().is_some_and(|b| b.0 >= r.score) {
                 continue;
             }
-            // Fit: the mean llr under the reading's marks and under the spaces inside its
-            // frames, against half the distance between the levels. A plan that does not
-            // match the code straddles marks and spaces and fits neither.
-            let (mut on, mut n_on, mut off, mut n_off) = (0.0f64, 0usize, 0.0f64, 0usize);
-            for f in &r.frames {
-                for k in f.first_mark..=f.last_mark {
-                    let (x, y) = r.marks[k];
-                    let (x, y) = (x as usize, (y as usize).min(llr.len()));
-                    on += llr[x..y.max(x)].iter().map(|&v| v as f64).sum::<f64>();
-                    n_on += y.saturating_sub(x);
-                    if k < f.last_mark {
-                        let z = (r.marks[k + 1].0 as usize).min(llr.len());
-                        off += llr[y..z.max(y)].iter().map(|&v| v as f64).sum::<f64>();
-                        n_off += z.saturating_sub(y);
-                    }
-                }
-            }
-            let half = 0.5 * (win.carrier - idle);
-            let fit = (on / n_on.max(1) as f64).min(-off / n_off.max(1) as f64) / half;
+            let fit = r.fit(llr, 0.5 * (win.carrier - idle));
             if std::env::var_os("OOKSIFT_DEBUG").is_some() {
                 eprintln!("    fit {fit:.2}");
             }

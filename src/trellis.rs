@@ -465,6 +465,39 @@ pub struct Reading {
 }
 
 impl Reading {
+    /// How well the reading lies on `llr`: the mean llr under its marks and minus the mean
+    /// under the spaces inside its frames, the smaller of the two, as a fraction of `half`
+    /// (half the difference between the carrier and idle levels the llr was made from). About
+    /// 1 when every mark and space lies where the carrier does; a plan that does not match the
+    /// code straddles marks and spaces and fits neither.
+    pub fn fit(&self, llr: &[f32], half: f64) -> f64 {
+        let sum = |a: usize, b: usize| -> (f64, usize) {
+            let (a, b) = (a.min(llr.len()), b.min(llr.len()));
+            let b = b.max(a);
+            (llr[a..b].iter().map(|&v| v as f64).sum(), b - a)
+        };
+        let (mut on, mut n_on, mut off, mut n_off) = (0.0f64, 0usize, 0.0f64, 0usize);
+        for f in &self.frames {
+            for k in f.first_mark..=f.last_mark.min(self.marks.len().saturating_sub(1)) {
+                let (x, y) = (self.marks[k].0 as usize, self.marks[k].1 as usize);
+                let (s, n) = sum(x, y);
+                on += s;
+                n_on += n;
+                if k < f.last_mark {
+                    if let Some(next) = self.marks.get(k + 1) {
+                        let (s, n) = sum(y, next.0 as usize);
+                        off += s;
+                        n_off += n;
+                    }
+                }
+            }
+        }
+        if half <= 0.0 || n_on == 0 {
+            return 0.0;
+        }
+        (on / n_on as f64).min(-off / n_off.max(1) as f64) / half
+    }
+
     /// The most common frame length in bits (ties: the longer); `None` without frames.
     pub fn modal_bits(&self) -> Option<usize> {
         let mut counts: Vec<(usize, usize)> = Vec::new();
@@ -732,6 +765,19 @@ mod tests {
         for f in 0..3 {
             assert_eq!(bits_of(&marks[11 * f..11 * f + 10], 16.0), bits);
         }
+    }
+
+    #[test]
+    fn the_right_plan_fits_and_a_wrong_unit_does_not() {
+        let bits = [true, false, true, true, false, false, true, false];
+        let env = pwm_env(&bits, 16, 3, 0.1, 13);
+        let llr: Vec<f32> = env.iter().map(|x| x - 0.5).collect();
+        let right = segment_frames(&llr, &pwm_plan(16.0), Some(8));
+        assert!(right.fit(&llr, 0.5) > 0.9, "{}", right.fit(&llr, 0.5));
+        // A unit a third too short lays marks across spaces.
+        let wrong = segment(&llr, &pwm_plan(11.0));
+        assert!(wrong.fit(&llr, 0.5) < 0.9, "{}", wrong.fit(&llr, 0.5));
+        assert_eq!(Reading::default().fit(&llr, 0.5), 0.0);
     }
 
     #[test]
