@@ -392,7 +392,19 @@ impl Decoder {
                         unit,
                         ..reading.plan.clone()
                     };
-                    (crate::trellis::segment(&llr, &plan).score, plan, reading)
+                    let free = crate::trellis::segment_coarse(&llr, &plan);
+                    if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+                        eprintln!(
+                            "  trellis plan {} ({:.2}) unit {:.1}: score {:.1}, {} frames, fit {:.2}",
+                            reading.line_code,
+                            reading.score,
+                            plan.unit,
+                            free.score,
+                            free.frames.len(),
+                            free.fit(&llr, 0.5 * (carrier - idle))
+                        );
+                    }
+                    (free.score, plan, reading)
                 })
             })
             .collect();
@@ -505,8 +517,23 @@ impl Decoder {
             )
         };
         // Frame lengths to search: the edge readings' and the free search's modal length.
+        let free = crate::trellis::segment(llr, &env_plan);
+        let free_fit = free.fit(llr, 0.5 * (win.carrier - idle));
+        if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+            eprintln!(
+                "  trellis free {line_code} unit {:.1}: {} frames, fit {free_fit:.2}",
+                env_plan.unit,
+                free.frames.len()
+            );
+        }
+        // The exact-length searches cost the most (their table grows with the frame length);
+        // a plan whose free reading lies far off the envelope or holds no repeat will not
+        // pass the final checks.
+        if free.frames.len() < 2 || free_fit < MIN_FREE_FIT {
+            return None;
+        }
         let mut lengths: Vec<usize> = known_bits.into_iter().collect();
-        if let Some(n) = crate::trellis::segment(llr, &env_plan).modal_bits() {
+        if let Some(n) = free.modal_bits() {
             if !lengths.contains(&n) {
                 lengths.push(n);
             }
@@ -839,6 +866,10 @@ const TRELLIS_EXACT_PLANS: usize = 3;
 /// that under the spaces inside its frames, as a fraction of half the level difference (1 for
 /// a reading that lays every mark and space where they are).
 const MIN_TRELLIS_FIT: f64 = 0.9;
+/// Lowest fit of a plan's free reading for its exact-length searches to run. Free and exact
+/// fits of one plan differed by at most 0.11 on 24 captures at 10 and 12 dB; right plans'
+/// free fits were 0.91–1.02.
+const MIN_FREE_FIT: f64 = 0.8;
 
 /// Smoothing widths (µs) the trellis stage reads timing plans from, besides the first and
 /// second passes' marks.
