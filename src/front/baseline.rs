@@ -234,7 +234,9 @@ fn restore_smoothed(
     ring: &mut Vec<f32>,
     outs: &mut [Vec<f32>; GROUP],
 ) {
-    let k = k.max(1);
+    // An average longer than the block never wraps, so a longer `k` (an absurd rate in a
+    // header makes one of 10⁸) computes the same with a block-long ring.
+    let k = k.clamp(1, y.len().max(1));
     for o in outs.iter_mut() {
         o.clear();
         o.reserve(y.len());
@@ -449,6 +451,33 @@ mod tests {
                     .all(|(a, b)| a.to_bits() == b.to_bits());
                 assert!(same, "candidate {g}, k {k}: grouped pass differs");
             }
+        }
+    }
+
+    /// An absurd header rate (10¹² Hz: a 60 µs average of 6·10⁷ samples) once made a 960 MB
+    /// ring for a 131-byte capture (fuzz input kept in tests/fuzz-crashes/decode_chain). An
+    /// average longer than the block gives the same output from a block-long ring.
+    #[test]
+    fn averages_longer_than_the_block_stay_block_sized() {
+        let y = signal(48e3, 0.05, Some(2e-3), true, 0.02);
+        let r = Restorer::new(48e3);
+        let alphas = [None, Some(r.alpha(0.4e-3)), Some(r.alpha(0.05)), None];
+        let run_k = |k: usize| {
+            let mut ring = Vec::new();
+            let mut outs: [Vec<f32>; GROUP] = Default::default();
+            restore_smoothed(None, &y, alphas, k, &mut ring, &mut outs);
+            (ring.len(), outs)
+        };
+        let (ring_len, huge) = run_k(60_000_000);
+        assert!(ring_len <= GROUP * y.len(), "ring of {ring_len}");
+        let (_, just_longer) = run_k(y.len() + 5);
+        for g in 0..GROUP {
+            assert_eq!(huge[g].len(), y.len());
+            let same = huge[g]
+                .iter()
+                .zip(&just_longer[g])
+                .all(|(a, b)| a.to_bits() == b.to_bits());
+            assert!(same, "candidate {g} differs");
         }
     }
 
