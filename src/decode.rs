@@ -908,6 +908,20 @@ pub fn decode_path(path: &str, opts: &DecodeOptions) -> Result<DecodeReport, Dec
         num_complex::Complex32::new(0.0, 0.0)
     };
     let plans = channel_plans(&survey, &info, opts);
+    if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+        for p in &plans {
+            eprintln!(
+                "channel {:.0} Hz: bandwidth {:.0} Hz, CIC {}x order {}, FIR {} taps /{}, out {:.0} Hz",
+                p.offset_hz,
+                p.bandwidth_hz,
+                p.cic_decim,
+                p.cic_order,
+                p.fir_taps.len(),
+                p.fir_decim,
+                p.out_rate_hz
+            );
+        }
+    }
     let mut src = source::open(path, &opts.open)?;
     if plans.is_empty() {
         let mut r = decode_source(src.as_mut(), opts)?;
