@@ -832,6 +832,11 @@ fn two_levels(env: &[f32], half: usize) -> Option<(f64, f64, f64)> {
     (carrier > idle).then_some((idle, carrier, spread))
 }
 
+/// One survey frame in this many feeds the statistics of `decode_path`'s survey ...
+pub const SURVEY_FRAME_STRIDE: usize = 4;
+/// ... after the first this many seconds of the capture, which are analysed in full.
+pub const SURVEY_FULL_SECONDS: f64 = 4.0;
+
 /// Plans (the likeliest by their free search) that get the exact-length searches.
 const TRELLIS_EXACT_PLANS: usize = 3;
 
@@ -970,6 +975,11 @@ fn survey_with_mean_progress(
     // decoding time (the channel then yields no code), a missed one costs the code.
     let mut cfg = SurveyConfig::for_rate(rate);
     cfg.min_snr_db = cfg.min_snr_db.min(6.0);
+    // After the first few seconds, one frame in four for the statistics (a press spans
+    // hundreds), with the gate for short bursts in between: the survey pass cost a quarter of
+    // the decode of a long capture.
+    cfg.frame_stride = SURVEY_FRAME_STRIDE;
+    cfg.stride_after_frames = (SURVEY_FULL_SECONDS * rate / cfg.fft_len as f64) as u64;
     let mut survey =
         SpectrumSurvey::new(rate, cfg).map_err(|e| DecodeError::Front(e.to_string()))?;
     while let Some(block) = src.next_block()? {

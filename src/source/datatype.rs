@@ -223,14 +223,18 @@ impl Datatype {
         if !(self.complex && self.component == Component::U8) {
             return false;
         }
+        // (b − 127.5) · (1/127.5) in f64, rounded once to f32, equals (b − 127.5) / 127.5 in
+        // f32 for all 256 codes (checked by `cu8_direct_path_matches_the_formula`), and
+        // vectorises: an f32 division per component cost more than reading the file.
         let start = out.len();
         out.resize(
             start + bytes.len() / 2,
             num_complex::Complex32::new(0.0, 0.0),
         );
+        const SCALE: f64 = 1.0 / 127.5;
         for (z, p) in out[start..].iter_mut().zip(bytes.chunks_exact(2)) {
-            z.re = (p[0] as f32 - 127.5) / 127.5;
-            z.im = (p[1] as f32 - 127.5) / 127.5;
+            z.re = ((p[0] as f64 - 127.5) * SCALE) as f32;
+            z.im = ((p[1] as f64 - 127.5) * SCALE) as f32;
         }
         true
     }
