@@ -725,7 +725,9 @@ unsafe fn fir2_avx2(h: &[f32], re: &[f32], im: &[f32]) -> (f32, f32) {
         _mm256_storeu_ps(ar.as_mut_ptr(), sr);
         _mm256_storeu_ps(ai.as_mut_ptr(), si);
     }
-    let tail = h.iter().zip(re.iter().zip(im)).take(len).skip(full);
+    let tail = h[full..len]
+        .iter()
+        .zip(re[full..len].iter().zip(&im[full..len]));
     for (l, (&hv, (&rv, &iv))) in tail.enumerate() {
         ar[l] += hv * rv;
         ai[l] += hv * iv;
