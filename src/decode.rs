@@ -859,6 +859,11 @@ fn two_levels(env: &[f32], half: usize) -> Option<(f64, f64, f64)> {
     (carrier > idle).then_some((idle, carrier, spread))
 }
 
+/// One survey frame in this many feeds the statistics of `decode_path`'s survey ...
+pub const SURVEY_FRAME_STRIDE: usize = 4;
+/// ... after the first this many seconds of the capture, which are analysed in full.
+pub const SURVEY_FULL_SECONDS: f64 = 4.0;
+
 /// Plans (the likeliest by their free search) that get the exact-length searches.
 const TRELLIS_EXACT_PLANS: usize = 3;
 
@@ -939,6 +944,20 @@ pub fn decode_path(path: &str, opts: &DecodeOptions) -> Result<DecodeReport, Dec
         num_complex::Complex32::new(0.0, 0.0)
     };
     let plans = channel_plans(&survey, &info, opts);
+    if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+        for p in &plans {
+            eprintln!(
+                "channel {:.0} Hz: bandwidth {:.0} Hz, CIC {}x order {}, FIR {} taps /{}, out {:.0} Hz",
+                p.offset_hz,
+                p.bandwidth_hz,
+                p.cic_decim,
+                p.cic_order,
+                p.fir_taps.len(),
+                p.fir_decim,
+                p.out_rate_hz
+            );
+        }
+    }
     let mut src = source::open(path, &opts.open)?;
     if plans.is_empty() {
         let mut r = decode_source(src.as_mut(), opts)?;
@@ -987,6 +1006,11 @@ fn survey_with_mean_progress(
     // decoding time (the channel then yields no code), a missed one costs the code.
     let mut cfg = SurveyConfig::for_rate(rate);
     cfg.min_snr_db = cfg.min_snr_db.min(6.0);
+    // After the first few seconds, one frame in four for the statistics (a press spans
+    // hundreds), with the gate for short bursts in between: the survey pass cost a quarter of
+    // the decode of a long capture.
+    cfg.frame_stride = SURVEY_FRAME_STRIDE;
+    cfg.stride_after_frames = (SURVEY_FULL_SECONDS * rate / cfg.fft_len as f64) as u64;
     let mut survey =
         SpectrumSurvey::new(rate, cfg).map_err(|e| DecodeError::Front(e.to_string()))?;
     while let Some(block) = src.next_block()? {

@@ -68,6 +68,39 @@ impl Smoother {
         (self.ring.len() as f64 - 1.0) / 2.0
     }
 
+    /// Adds a block of a channel's complex outputs: for each, its magnitude and its lag-1
+    /// product with the one before (`prev`, carried between blocks), averaged and appended
+    /// to `out`. The same values as [`Smoother::push`] one sample at a time, without the
+    /// per-sample calls and vector growth.
+    pub fn push_iq(&mut self, zs: &[Complex32], prev: &mut Complex32, out: &mut EnvelopeBlock) {
+        out.env.reserve(zs.len());
+        out.lag.reserve(zs.len());
+        let len = self.ring.len();
+        let div = len as f64;
+        let (mut sum, mut lag_sum, mut pos, mut p) = (self.sum, self.lag_sum, self.pos, *prev);
+        for &z in zs {
+            let l = z * p.conj();
+            p = z;
+            let v = z.norm();
+            let (Some(slot), Some(lag_slot)) = (self.ring.get_mut(pos), self.lag_ring.get_mut(pos))
+            else {
+                break;
+            };
+            let old = std::mem::replace(slot, v);
+            sum += v as f64 - old as f64;
+            let old = std::mem::replace(lag_slot, l);
+            lag_sum += Complex64::new(l.re as f64 - old.re as f64, l.im as f64 - old.im as f64);
+            out.env.push((sum / div) as f32);
+            out.lag
+                .push(Complex32::new(lag_sum.re as f32, lag_sum.im as f32));
+            pos += 1;
+            if pos == len {
+                pos = 0;
+            }
+        }
+        (self.sum, self.lag_sum, self.pos, *prev) = (sum, lag_sum, pos, p);
+    }
+
     /// Adds one sample (and its lag product, for IQ) and appends the averages to `out`.
     pub fn push(&mut self, v: f32, lag: Option<Complex32>, out: &mut EnvelopeBlock) {
         let old = std::mem::replace(&mut self.ring[self.pos], v);
@@ -96,8 +129,6 @@ pub struct ChannelEnvelope {
     ch: Channelizer,
     plan: ChannelPlan,
     iq: Vec<Complex32>,
-    input: Vec<Complex32>,
-    dc: Complex32,
     prev: Complex32,
     smoother: Smoother,
 }
@@ -105,7 +136,7 @@ pub struct ChannelEnvelope {
 impl ChannelEnvelope {
     /// Removes a constant `dc` (the receiver's DC offset) from every input sample.
     pub fn with_dc(mut self, dc: Complex32) -> ChannelEnvelope {
-        self.dc = dc;
+        self.ch.set_dc(dc);
         self
     }
 
@@ -115,8 +146,6 @@ impl ChannelEnvelope {
             ch: Channelizer::new(&plan)?,
             plan,
             iq: Vec::new(),
-            input: Vec::new(),
-            dc: Complex32::new(0.0, 0.0),
             prev: Complex32::new(0.0, 0.0),
             smoother: Smoother::new(smooth),
         })
@@ -141,18 +170,8 @@ impl ChannelEnvelope {
     /// Appends the envelope of an IQ block to `out`.
     pub fn process(&mut self, block: &[Complex32], out: &mut EnvelopeBlock) {
         self.iq.clear();
-        if self.dc == Complex32::new(0.0, 0.0) {
-            self.ch.process_iq(block, &mut self.iq);
-        } else {
-            self.input.clear();
-            self.input.extend(block.iter().map(|&z| z - self.dc));
-            self.ch.process_iq(&self.input, &mut self.iq);
-        }
-        for &z in &self.iq {
-            let l = z * self.prev.conj();
-            self.prev = z;
-            self.smoother.push(z.norm(), Some(l), out);
-        }
+        self.ch.process_iq(block, &mut self.iq);
+        self.smoother.push_iq(&self.iq, &mut self.prev, out);
     }
 }
 

@@ -223,15 +223,22 @@ impl Datatype {
         if !(self.complex && self.component == Component::U8) {
             return false;
         }
+        // (b − 127.5) · (1/127.5) in f64, rounded once to f32, equals (b − 127.5) / 127.5 in
+        // f32 for all 256 codes (checked by `cu8_direct_path_matches_the_formula`), and
+        // vectorises: an f32 division per component cost more than reading the file.
         let start = out.len();
         out.resize(
             start + bytes.len() / 2,
             num_complex::Complex32::new(0.0, 0.0),
         );
-        for (z, p) in out[start..].iter_mut().zip(bytes.chunks_exact(2)) {
-            z.re = (p[0] as f32 - 127.5) / 127.5;
-            z.im = (p[1] as f32 - 127.5) / 127.5;
+        let dst = &mut out[start..];
+        #[cfg(target_arch = "x86_64")]
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the CPU reports AVX2, the only feature `cu8_to_iq_avx2` is compiled for.
+            unsafe { cu8_to_iq_avx2(bytes, dst) };
+            return true;
         }
+        cu8_to_iq(bytes, dst);
         true
     }
 
@@ -271,6 +278,24 @@ impl Datatype {
             }
         }
     }
+}
+
+/// cu8 bytes to complex samples: (b − 127.5) · (1/127.5) in f64, rounded once to f32.
+#[inline(always)]
+fn cu8_to_iq(bytes: &[u8], out: &mut [num_complex::Complex32]) {
+    const SCALE: f64 = 1.0 / 127.5;
+    for (z, p) in out.iter_mut().zip(bytes.chunks_exact(2)) {
+        z.re = ((p[0] as f64 - 127.5) * SCALE) as f32;
+        z.im = ((p[1] as f64 - 127.5) * SCALE) as f32;
+    }
+}
+
+/// [`cu8_to_iq`] compiled for AVX2 (four f64 lanes instead of two): the same operations on
+/// each value, so the same floats.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+unsafe fn cu8_to_iq_avx2(bytes: &[u8], out: &mut [num_complex::Complex32]) {
+    cu8_to_iq(bytes, out);
 }
 
 #[cfg(test)]
