@@ -577,7 +577,8 @@ impl Channelizer {
         for (j, ab) in self.coef.chunks_exact(2 * self.flat_len).enumerate() {
             let (a, b) = ab.split_at(self.flat_len);
             let (re, im) = if self.wide {
-                dot2_wide(a, b, &self.flat)
+                // SAFETY: `wide` is private and set only from `has_avx2()`.
+                unsafe { dot2_wide(a, b, &self.flat) }
             } else {
                 dot2(a, b, &self.flat)
             };
@@ -610,7 +611,8 @@ impl Channelizer {
             let re = self.hist_re.get(span.clone()).unwrap_or(&[]);
             let im = self.hist_im.get(span).unwrap_or(&[]);
             let (re, im) = if self.wide {
-                fir2_wide(&self.taps, re, im)
+                // SAFETY: `wide` is private and set only from `has_avx2()`.
+                unsafe { fir2_wide(&self.taps, re, im) }
             } else {
                 (dot_ragged(&self.taps, re), dot_ragged(&self.taps, im))
             };
@@ -647,11 +649,14 @@ fn dot2(a: &[f32], b: &[f32], x: &[f32]) -> (f32, f32) {
 /// [`dot2`] on 256-bit vectors: the same products and sums in the same lanes and order (no
 /// FMA), so bit-identical. Left to itself the compiler splits one of the two sums into
 /// 2-lane pieces, at half the speed of the whole channel. Call only when [`has_avx2`].
+///
+/// # Safety
+/// The CPU must support AVX2 ([`has_avx2`]).
 #[inline(always)]
-fn dot2_wide(a: &[f32], b: &[f32], x: &[f32]) -> (f32, f32) {
+unsafe fn dot2_wide(a: &[f32], b: &[f32], x: &[f32]) -> (f32, f32) {
     #[cfg(target_arch = "x86_64")]
     {
-        // SAFETY: `wide` (the only caller's condition) is set only when the CPU reports AVX2.
+        // SAFETY: this function's own precondition.
         unsafe { dot2_avx2(a, b, x) }
     }
     #[cfg(not(target_arch = "x86_64"))]
@@ -685,11 +690,14 @@ unsafe fn dot2_avx2(a: &[f32], b: &[f32], x: &[f32]) -> (f32, f32) {
 
 /// ([`dot_ragged`]`(h, re)`, [`dot_ragged`]`(h, im)`) on 256-bit vectors, bit-identical (same
 /// lanes, same order, the ragged tail added to the first lanes). Call only when [`has_avx2`].
+///
+/// # Safety
+/// The CPU must support AVX2 ([`has_avx2`]).
 #[inline(always)]
-fn fir2_wide(h: &[f32], re: &[f32], im: &[f32]) -> (f32, f32) {
+unsafe fn fir2_wide(h: &[f32], re: &[f32], im: &[f32]) -> (f32, f32) {
     #[cfg(target_arch = "x86_64")]
     {
-        // SAFETY: `wide` (the only caller's condition) is set only when the CPU reports AVX2.
+        // SAFETY: this function's own precondition.
         unsafe { fir2_avx2(h, re, im) }
     }
     #[cfg(not(target_arch = "x86_64"))]
