@@ -97,6 +97,226 @@ pub fn merge_glitches(marks: &mut Vec<Mark>, fraction: f64) -> usize {
     before - marks.len()
 }
 
+/// Marks per window the chatter test judges ([`ChatterFilter`]).
+pub const CHATTER_WINDOW: usize = 16;
+/// Sorted widths further apart than this ratio fall into different groups.
+pub const GROUP_RATIO: f64 = 1.2;
+/// A window whose marks and spaces together fall into at most this many width groups is
+/// regular (a code); more, and it is chatter.
+///
+/// A code's window holds two or three mark widths and two to four space widths (data, sync,
+/// header); NRZ's runs of one to four units make four of each and still pass. Chatter whose
+/// widths spread over a ratio of 50 (the synth's model) makes 8 or fewer groups in fewer than
+/// 3 of 10 000 windows of 16 marks (a seeded simulation, `width_groups_of_chatter_are_many`).
+pub const MAX_REGULAR_GROUPS: usize = 8;
+
+/// Number of groups the widths fall into: sorted, a new group starts wherever a width
+/// exceeds the one before by more than [`GROUP_RATIO`]. Sorts `widths` in place. Widths that
+/// are not positive and finite are ignored.
+///
+/// ```
+/// let mut w = [1.0, 3.1, 0.95, 2.9, 1.05, 3.0];
+/// assert_eq!(ooksift::bursts::width_groups(&mut w), 2);
+/// ```
+pub fn width_groups(widths: &mut [f64]) -> usize {
+    widths.sort_by(f64::total_cmp);
+    let mut groups = 0;
+    let mut prev: Option<f64> = None;
+    for &w in widths.iter().filter(|w| w.is_finite() && **w > 0.0) {
+        match prev {
+            Some(p) if w <= GROUP_RATIO * p => {}
+            _ => groups += 1,
+        }
+        prev = Some(w);
+    }
+    groups
+}
+
+/// Whether consecutive marks look like a code rather than chatter: their mark widths and
+/// the spaces between them fall into at most [`MAX_REGULAR_GROUPS`] width groups.
+pub fn is_regular(marks: &[Mark]) -> bool {
+    let mut w: Vec<f64> = marks.iter().map(Mark::width).collect();
+    let mut s: Vec<f64> = marks.windows(2).map(|p| p[1].rise - p[0].fall).collect();
+    width_groups(&mut w) + width_groups(&mut s) <= MAX_REGULAR_GROUPS
+}
+
+/// Streaming separation of a code's marks from a superregenerative receiver's idle chatter.
+///
+/// Such a receiver's data output is never quiet while nothing transmits: it chatters with
+/// full-scale pulses of random width, so neither level nor silence tells chatter from a code;
+/// only regularity does. A code's marks and spaces take a few widths and repeat; chatter's are
+/// scattered (common practice). Every window of [`CHATTER_WINDOW`] consecutive marks is judged
+/// by [`is_regular`]; a mark inside at least one regular window is kept, any other is chatter
+/// and dropped, so the stretch it covered reads as silence. A run of marks between silences
+/// longer than `max_quiet` that is shorter than a window cannot be judged and is kept whole.
+///
+/// Marks come out in order, delayed by at most one window.
+///
+/// ```
+/// use ooksift::bursts::ChatterFilter;
+/// use ooksift::edges::Mark;
+/// let mk = |r: f64, w: f64| Mark { rise: r, fall: r + w, level: 1.0, noise: 0.01, lag: Default::default() };
+/// let mut f = ChatterFilter::new(1e6);
+/// let mut kept = Vec::new();
+/// // Scattered widths, then a regular code of 40 marks.
+/// let mut t = 0.0;
+/// for k in 0..40u32 {
+///     let w = 3.0 * 1.9f64.powi((k * 7 % 6) as i32);
+///     f.push(mk(t, w), &mut kept);
+///     t += w + 3.0 * 1.7f64.powi((k * 5 % 7) as i32);
+/// }
+/// for k in 0..40 {
+///     f.push(mk(t, if k % 3 == 0 { 30.0 } else { 10.0 }), &mut kept);
+///     t += 40.0;
+/// }
+/// f.flush(&mut kept);
+/// assert!(kept.len() >= 40 && kept.len() <= 42, "{}", kept.len());
+/// ```
+#[derive(Debug, Clone)]
+pub struct ChatterFilter {
+    /// Marks not yet released, each with whether a regular window covered it.
+    queue: std::collections::VecDeque<(Mark, bool)>,
+    /// Marks in the current run (since the last silence).
+    run: usize,
+    /// A silence longer than this ends a run.
+    max_quiet: f64,
+    /// Marks dropped as chatter so far.
+    dropped: u64,
+}
+
+impl ChatterFilter {
+    /// A filter whose runs end at silences longer than `max_quiet` samples.
+    pub fn new(max_quiet: f64) -> ChatterFilter {
+        ChatterFilter {
+            queue: std::collections::VecDeque::with_capacity(CHATTER_WINDOW),
+            run: 0,
+            max_quiet,
+            dropped: 0,
+        }
+    }
+
+    /// Adds the next mark; marks that leave the window are appended to `out` when kept.
+    pub fn push(&mut self, m: Mark, out: &mut Vec<Mark>) {
+        if matches!(self.queue.back(), Some((b, _)) if m.rise - b.fall > self.max_quiet) {
+            self.flush(out);
+        }
+        self.queue.push_back((m, false));
+        self.run += 1;
+        let n = self.queue.len();
+        if n >= CHATTER_WINDOW {
+            let window: Vec<Mark> = self
+                .queue
+                .range(n - CHATTER_WINDOW..)
+                .map(|(m, _)| m.clone())
+                .collect();
+            if is_regular(&window) {
+                for e in self.queue.range_mut(n - CHATTER_WINDOW..) {
+                    e.1 = true;
+                }
+            }
+            if n == CHATTER_WINDOW {
+                if let Some(e) = self.queue.pop_front() {
+                    self.release(e, out);
+                }
+            }
+        }
+    }
+
+    fn release(&mut self, (m, regular): (Mark, bool), out: &mut Vec<Mark>) {
+        if regular || self.run < CHATTER_WINDOW {
+            out.push(m);
+        } else {
+            self.dropped += 1;
+        }
+    }
+
+    /// Nothing happened up to `pos`: ends the run when the silence has grown past
+    /// `max_quiet`, releasing its last marks.
+    pub fn idle_until(&mut self, pos: f64, out: &mut Vec<Mark>) {
+        if matches!(self.queue.back(), Some((b, _)) if pos - b.fall > self.max_quiet) {
+            self.flush(out);
+        }
+    }
+
+    /// Ends the run: releases every mark still held.
+    pub fn flush(&mut self, out: &mut Vec<Mark>) {
+        while let Some(e) = self.queue.pop_front() {
+            self.release(e, out);
+        }
+        self.run = 0;
+    }
+
+    /// Rising edge of the earliest mark still held.
+    pub fn first_pending(&self) -> Option<f64> {
+        self.queue.front().map(|(m, _)| m.rise)
+    }
+
+    /// Marks dropped as chatter so far.
+    pub fn dropped(&self) -> u64 {
+        self.dropped
+    }
+}
+
+/// Removes chatter from one burst's marks: a [`ChatterFilter`] over them (the whole burst one
+/// run), then [`trim_misfits`]. Returns how many marks were removed.
+pub fn strip_chatter(marks: &mut Vec<Mark>) -> usize {
+    let before = marks.len();
+    let mut f = ChatterFilter::new(f64::INFINITY);
+    let mut out = Vec::with_capacity(marks.len());
+    for m in marks.drain(..) {
+        f.push(m, &mut out);
+    }
+    f.flush(&mut out);
+    *marks = out;
+    trim_misfits(marks);
+    before - marks.len()
+}
+
+/// Consecutive fitting marks (and the spaces between them) that anchor a burst's ends in
+/// [`trim_misfits`].
+pub const FIT_RUN: usize = 3;
+
+/// Drops marks at either end of a burst that fit none of its widths: a window that judged
+/// a code regular may still reach a chatter mark or two beyond the code's ends.
+///
+/// A mark fits when at least two other marks of the burst lie within [`GROUP_RATIO`] of its
+/// width, a space likewise among the spaces (a code repeats its widths; chatter does not).
+/// The burst starts at the first mark that opens [`FIT_RUN`] fitting marks joined by fitting
+/// spaces, and ends at the last that closes such a run; a burst with no such run is left
+/// whole. Returns how many marks were dropped.
+pub fn trim_misfits(marks: &mut Vec<Mark>) -> usize {
+    let n = marks.len();
+    if n < 2 * FIT_RUN {
+        return 0;
+    }
+    let sorted = |mut v: Vec<f64>| {
+        v.sort_by(f64::total_cmp);
+        v
+    };
+    let mw = sorted(marks.iter().map(Mark::width).collect());
+    let sw = sorted(marks.windows(2).map(|p| p[1].rise - p[0].fall).collect());
+    // Elements within the ratio of `x`, itself included.
+    let near = |v: &[f64], x: f64| {
+        let lo = v.partition_point(|&y| y < x / GROUP_RATIO);
+        let hi = v.partition_point(|&y| y <= x * GROUP_RATIO);
+        hi - lo
+    };
+    let fit_mark = |i: usize| near(&mw, marks[i].width()) >= 3;
+    let fit_space = |i: usize| near(&sw, marks[i + 1].rise - marks[i].fall) >= 3;
+    // Marks i..i+FIT_RUN all fit, as do the spaces between them.
+    let run_at = |i: usize| (i..i + FIT_RUN).all(fit_mark) && (i..i + FIT_RUN - 1).all(fit_space);
+    let Some(first) = (0..=n - FIT_RUN).find(|&i| run_at(i)) else {
+        return 0;
+    };
+    let last = (0..=n - FIT_RUN)
+        .rev()
+        .find(|&i| run_at(i))
+        .map_or(n - 1, |i| i + FIT_RUN - 1);
+    marks.truncate(last + 1);
+    marks.drain(..first);
+    n - marks.len()
+}
+
 /// Marks far weaker than the burst's strong marks are noise (false alarms in the silences
 /// between presses, which would otherwise chain presses together): those below
 /// [`WEAK_FRACTION`] of the 90th-percentile level are dropped, and what remains is split again
@@ -180,11 +400,16 @@ pub struct BurstSplitter {
     chain_longest: f64,
     /// Falling edge of the chain's last mark, weak or strong; `None` once the chain ended.
     last_fall: Option<f64>,
+    /// Drops chatter before the marks reach the burst rule.
+    chatter: ChatterFilter,
+    /// Marks the chatter filter released, waiting for the burst rule.
+    kept: Vec<Mark>,
 }
 
 impl BurstSplitter {
     /// An empty splitter.
     pub fn new(cfg: BurstConfig) -> BurstSplitter {
+        let cfg_gap = cfg.min_gap;
         BurstSplitter {
             cfg,
             current: Vec::new(),
@@ -195,6 +420,8 @@ impl BurstSplitter {
             chain_level: 0.0,
             chain_longest: 0.0,
             last_fall: None,
+            chatter: ChatterFilter::new(cfg_gap),
+            kept: Vec::new(),
         }
     }
 
@@ -234,7 +461,28 @@ impl BurstSplitter {
     }
 
     /// Adds the next mark; a burst it ends is appended to `out`.
+    ///
+    /// Marks pass a [`ChatterFilter`] first: chatter is dropped and reads as silence.
     pub fn push(&mut self, m: Mark, out: &mut Vec<Burst>) {
+        let mut kept = std::mem::take(&mut self.kept);
+        self.chatter.push(m, &mut kept);
+        self.accept_all(&mut kept, out);
+        self.kept = kept;
+    }
+
+    /// Runs released marks through the burst rule, then lets the silence before the first
+    /// mark still held close what it can (no later mark can come before it).
+    fn accept_all(&mut self, kept: &mut Vec<Mark>, out: &mut Vec<Burst>) {
+        for k in kept.drain(..) {
+            self.accept(k, out);
+        }
+        if let Some(p) = self.chatter.first_pending() {
+            self.idle_to(p, out);
+        }
+    }
+
+    /// The burst rule for one mark that is not chatter.
+    fn accept(&mut self, m: Mark, out: &mut Vec<Burst>) {
         if let Some(last_fall) = self.last_fall {
             let space = m.rise - last_fall;
             if space > self.chain_gap() {
@@ -273,6 +521,15 @@ impl BurstSplitter {
     /// Tells the splitter that nothing happened up to `pos`; closes a burst whose silence
     /// has grown past the gap (lets streams report presses as they end).
     pub fn idle_until(&mut self, pos: f64, out: &mut Vec<Burst>) {
+        let mut kept = std::mem::take(&mut self.kept);
+        self.chatter.idle_until(pos, &mut kept);
+        self.accept_all(&mut kept, out);
+        self.kept = kept;
+        let pos = self.chatter.first_pending().map_or(pos, |p| p.min(pos));
+        self.idle_to(pos, out);
+    }
+
+    fn idle_to(&mut self, pos: f64, out: &mut Vec<Burst>) {
         if !self.current.is_empty() && pos - self.last_strong_fall > self.gap() {
             self.close(out);
         }
@@ -281,13 +538,29 @@ impl BurstSplitter {
         }
     }
 
-    /// Rising edge of the first mark of the burst in progress, if one is open.
+    /// Rising edge of the first mark of the burst in progress, or of the first mark the chatter
+    /// filter still holds, if any.
     pub fn open_start(&self) -> Option<f64> {
-        self.current.first().map(|m| m.rise)
+        match (self.current.first(), self.chatter.first_pending()) {
+            (Some(m), Some(p)) => Some(m.rise.min(p)),
+            (Some(m), None) => Some(m.rise),
+            (None, p) => p,
+        }
+    }
+
+    /// Marks dropped as chatter so far.
+    pub fn chatter_dropped(&self) -> u64 {
+        self.chatter.dropped()
     }
 
     /// Closes the last burst at the end of the capture.
     pub fn finish(&mut self, out: &mut Vec<Burst>) {
+        let mut kept = std::mem::take(&mut self.kept);
+        self.chatter.flush(&mut kept);
+        for k in kept.drain(..) {
+            self.accept(k, out);
+        }
+        self.kept = kept;
         self.close(out);
         self.end_chain();
     }

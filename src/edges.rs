@@ -92,6 +92,8 @@ pub struct EdgeDetector {
     floor: f32,
     dev: f32,
     seen: u64,
+    /// The warm-up samples, for a floor estimate from their lower part.
+    warm: Vec<f32>,
     recent_level: f32,
     ring: Vec<f32>,
     in_mark: bool,
@@ -120,6 +122,7 @@ impl EdgeDetector {
             floor: 0.0,
             dev: 0.0,
             seen: 0,
+            warm: Vec::new(),
             recent_level: 0.0,
             in_mark: false,
             det: 0,
@@ -189,6 +192,10 @@ impl EdgeDetector {
             let a = 1.0 / self.seen as f32;
             self.floor += a * (x - self.floor);
             self.dev += a * ((x - self.floor).abs() - self.dev);
+            self.warm.push(x);
+            if self.seen == self.cfg.warmup as u64 {
+                self.floor_from_warmup();
+            }
             return;
         }
         let thr = self.floor + (self.cfg.on_sigma * self.sigma()).max(0.5 * self.recent_level);
@@ -210,6 +217,12 @@ impl EdgeDetector {
         let d = x - self.floor;
         if d < -4.0 * sigma {
             self.floor += 4.0 * a * d;
+        } else if d > 2.0 * sigma {
+            // Well above the floor is more likely signal than noise (the ramps of marks, marks
+            // too short to detect; a superregenerative receiver's idle chatter is half made
+            // of them): an eighth of a step, or the floor climbs into the chatter and the
+            // spread learnt below it grows until no mark is seen (issue 4).
+            self.floor += 0.125 * a * sigma;
         } else {
             self.floor += a * sigma * d.signum();
             if d < 0.0 {
@@ -217,6 +230,26 @@ impl EdgeDetector {
             }
         }
         self.recent_level *= 1.0 - 1.0 / self.cfg.level_tau;
+    }
+
+    /// Floor and spread from the lower part of the warm-up (issue 4): a superregenerative
+    /// receiver's chatter fills about half of it with full-scale marks, and a mean would put
+    /// the floor between the two levels, where the spread learnt below it grows until no mark
+    /// is seen. For Gaussian noise the 10th and 30th percentiles lie 1.2816 and 0.5244
+    /// standard deviations below the mean (common practice: the normal quantile function),
+    /// so σ = (q30 − q10) / 0.7572 and the floor is q30 + 0.5244·σ.
+    fn floor_from_warmup(&mut self) {
+        let mut v = std::mem::take(&mut self.warm);
+        if v.len() >= 20 {
+            v.sort_by(f32::total_cmp);
+            let (q10, q30) = (v[v.len() / 10], v[3 * v.len() / 10]);
+            let sigma = (q30 - q10) / 0.7572;
+            if sigma.is_finite() && q30.is_finite() {
+                self.floor = q30 + 0.5244 * sigma;
+                // `sigma()` is 1.2533 × the mean absolute deviation.
+                self.dev = sigma / 1.2533;
+            }
+        }
     }
 
     fn start_mark(&mut self, i: u64, x: f32, l: Complex64) {
