@@ -580,6 +580,159 @@ mod tests {
         }
     }
 
+    /// Chatter marks from `t` until `until`: widths and spaces log-uniform over 3–150
+    /// samples (the synth's 30 µs–1.5 ms at 100 kHz), full level.
+    fn chatter(rng: &mut crate::rng::Rng, mut t: f64, until: f64) -> Vec<Mark> {
+        let w = |rng: &mut crate::rng::Rng| 3.0 * 50f64.powf(rng.uniform());
+        let mut out = Vec::new();
+        loop {
+            let m = w(rng);
+            if t + m > until {
+                return out;
+            }
+            out.push(Mark {
+                rise: t,
+                fall: t + m,
+                level: 1.0,
+                noise: 0.01,
+                lag: Default::default(),
+            });
+            t += m + w(rng);
+        }
+    }
+
+    /// `marks` moved to start at `t`.
+    fn shifted(marks: &[Mark], t: f64) -> Vec<Mark> {
+        let d = t - marks[0].rise;
+        marks
+            .iter()
+            .map(|m| Mark {
+                rise: m.rise + d,
+                fall: m.fall + d,
+                ..m.clone()
+            })
+            .collect()
+    }
+
+    #[test]
+    fn width_groups_of_chatter_are_many() {
+        // Seeded simulation behind MAX_REGULAR_GROUPS's documented false-regular rate.
+        let mut rng = crate::rng::Rng::new(4);
+        let trials = 10_000;
+        let regular = (0..trials)
+            .filter(|_| is_regular(&chatter(&mut rng, 0.0, 1e9)[..CHATTER_WINDOW]))
+            .count();
+        assert!(regular < 3, "{regular} of {trials} chatter windows regular");
+        // A code's windows are regular: PWM, PPM with its header, both with sync gaps.
+        for code in [
+            crate::coding::test_marks::pwm("1100101011110000", 35.0, 3),
+            crate::coding::test_marks::ppm("1100101011110000", 35.0, 3),
+        ] {
+            for w in code.windows(CHATTER_WINDOW) {
+                assert!(is_regular(w));
+            }
+        }
+    }
+
+    #[test]
+    fn a_code_amid_chatter_is_kept_exactly() {
+        let mut rng = crate::rng::Rng::new(7);
+        for (k, code) in [
+            crate::coding::test_marks::pwm("110100101101001011110001", 35.0, 5),
+            crate::coding::test_marks::ppm("1011001110001011", 40.0, 4),
+        ]
+        .into_iter()
+        .enumerate()
+        {
+            for trial in 0..20 {
+                // Chatter up to 500 samples (5 ms at 100 kHz) before and after the code.
+                let start = 20_000.0 + 137.0 * trial as f64;
+                let code = shifted(&code, start);
+                let end = code[code.len() - 1].fall;
+                let mut marks = chatter(&mut rng, 0.0, start - 500.0);
+                marks.extend(code.iter().cloned());
+                marks.extend(chatter(&mut rng, end + 500.0, end + 20_000.0));
+                let dropped = strip_chatter(&mut marks);
+                assert_eq!(marks, code, "code {k} trial {trial}");
+                assert!(dropped > 100, "{dropped}");
+            }
+        }
+    }
+
+    #[test]
+    fn presses_amid_endless_chatter_split_into_bursts() {
+        // 200 000 samples of chatter (about 1300 marks per 100 000) around and between two
+        // presses: each press is a burst of its own marks, and the chatter never reaches
+        // the mark limit (which would drop the second press).
+        let mut rng = crate::rng::Rng::new(11);
+        let a = shifted(
+            &crate::coding::test_marks::pwm("1100101011110000", 35.0, 4),
+            60_000.0,
+        );
+        let b = shifted(
+            &crate::coding::test_marks::ppm("1011001110001011", 40.0, 4),
+            140_000.0,
+        );
+        let mut marks = chatter(&mut rng, 0.0, a[0].rise - 500.0);
+        marks.extend(a.iter().cloned());
+        let a_end = a[a.len() - 1].fall;
+        marks.extend(chatter(&mut rng, a_end + 500.0, b[0].rise - 500.0));
+        marks.extend(b.iter().cloned());
+        let b_end = b[b.len() - 1].fall;
+        marks.extend(chatter(&mut rng, b_end + 500.0, 200_000.0));
+        let mut split = BurstSplitter::new(BurstConfig {
+            min_gap: 8000.0,
+            gap_factor: 3.0,
+            min_marks: 6,
+            max_marks: 1000,
+        });
+        let mut out = Vec::new();
+        for m in marks {
+            split.push(m, &mut out);
+        }
+        // The first press closes while the chatter goes on.
+        assert!(!out.is_empty());
+        split.finish(&mut out);
+        assert!(
+            split.chatter_dropped() > 2000,
+            "{}",
+            split.chatter_dropped()
+        );
+        let long: Vec<&Burst> = out.iter().filter(|b| b.marks.len() > 40).collect();
+        assert_eq!(
+            long.len(),
+            2,
+            "{:?}",
+            out.iter().map(|b| b.marks.len()).collect::<Vec<_>>()
+        );
+        for (burst, code) in long.iter().zip([&a, &b]) {
+            let mut m = burst.marks.clone();
+            trim_misfits(&mut m);
+            assert_eq!(&m, code);
+            assert!(!burst.capped);
+        }
+    }
+
+    #[test]
+    fn misfits_are_trimmed_only_at_the_ends() {
+        let code = crate::coding::test_marks::pwm("1100101011110000", 35.0, 3);
+        let mut marks = code.clone();
+        // A header-like single mark inside is kept; stray marks at the ends are dropped.
+        let mut stray = code[0].clone();
+        stray.rise -= 900.0;
+        stray.fall = stray.rise + 61.0;
+        let mut after = code[code.len() - 1].clone();
+        after.rise += 700.0;
+        after.fall = after.rise + 9.0;
+        marks.insert(0, stray);
+        marks.push(after);
+        assert_eq!(trim_misfits(&mut marks), 2);
+        assert_eq!(marks, code);
+        // Too short to judge: untouched.
+        let mut few = code[..4].to_vec();
+        assert_eq!(trim_misfits(&mut few), 0);
+    }
+
     #[test]
     fn weak_noise_marks_in_the_silence_do_not_chain_presses() {
         // Regression: a stream whose silences held a weak false mark every 500 samples

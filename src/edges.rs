@@ -525,6 +525,35 @@ mod tests {
     }
 
     #[test]
+    fn chatter_from_the_first_sample_does_not_blind_the_detector() {
+        // Issue 4: a capture that starts amid a superregenerative receiver's chatter (full
+        // level, half the time on, widths log-uniform over 6–300 samples). The floor must
+        // stay at the idle level, so the chatter's marks are seen all through.
+        let mut rng = Rng::new(21);
+        let w = |rng: &mut Rng| 6.0 * 50f64.powf(rng.uniform());
+        let mut truth = Vec::new();
+        let mut t = 0.0;
+        while t < 190_000.0 {
+            let m = w(&mut rng);
+            truth.push((t, t + m));
+            t += m + w(&mut rng);
+        }
+        let env = render(200_000, &truth, 4.0, 0.03, 22);
+        let marks = run(&env, 4096);
+        let late = |v: &[f64]| v.iter().filter(|&&r| r > 100_000.0).count();
+        let want = late(&truth.iter().map(|m| m.0).collect::<Vec<_>>());
+        let got = late(&marks.iter().map(|m| m.rise).collect::<Vec<_>>());
+        assert!(want > 500, "{want}");
+        assert!(got >= want * 9 / 10, "{got} of {want} chatter marks seen");
+        let early = marks.iter().filter(|m| m.rise < 20_000.0).count();
+        let early_truth = truth.iter().filter(|m| m.0 < 20_000.0).count();
+        assert!(
+            early >= early_truth * 8 / 10,
+            "{early} of {early_truth} at the start"
+        );
+    }
+
+    #[test]
     fn sub_sample_edges_are_recovered() {
         let truth = [(500.3, 570.8), (700.55, 910.1), (1000.0, 1013.4)];
         let env = render(2000, &truth, 4.0, 0.0, 1);
