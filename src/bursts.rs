@@ -17,7 +17,7 @@
 //! use ooksift::bursts::{BurstConfig, BurstSplitter};
 //! use ooksift::edges::Mark;
 //! let mk = |r: f64| Mark { rise: r, fall: r + 10.0, level: 1.0, noise: 0.01, lag: Default::default() };
-//! let mut split = BurstSplitter::new(BurstConfig { min_gap: 1000.0, gap_factor: 3.0, min_marks: 2, max_marks: 100 });
+//! let mut split = BurstSplitter::new(BurstConfig { min_gap: 1000.0, gap_factor: 3.0, min_marks: 2, max_marks: 100, drop_chatter: true });
 //! let mut out = Vec::new();
 //! for r in [0.0, 30.0, 60.0, 5000.0, 5030.0] { split.push(mk(r), &mut out); }
 //! split.finish(&mut out);
@@ -365,6 +365,10 @@ pub struct BurstConfig {
     pub min_marks: usize,
     /// Marks kept per burst at most (a limit, reported when hit).
     pub max_marks: usize,
+    /// Drop a superregenerative receiver's chatter ([`ChatterFilter`]) before the burst rule
+    /// (envelope captures; IQ captures hold no such chatter, and their weak false marks are
+    /// handled by level).
+    pub drop_chatter: bool,
 }
 
 impl BurstConfig {
@@ -375,6 +379,7 @@ impl BurstConfig {
             gap_factor: 3.0,
             min_marks: 6,
             max_marks: 20_000,
+            drop_chatter: true,
         }
     }
 }
@@ -464,6 +469,10 @@ impl BurstSplitter {
     ///
     /// Marks pass a [`ChatterFilter`] first: chatter is dropped and reads as silence.
     pub fn push(&mut self, m: Mark, out: &mut Vec<Burst>) {
+        if !self.cfg.drop_chatter {
+            self.accept(m, out);
+            return;
+        }
         let mut kept = std::mem::take(&mut self.kept);
         self.chatter.push(m, &mut kept);
         self.accept_all(&mut kept, out);
@@ -702,6 +711,7 @@ mod tests {
             gap_factor: 3.0,
             min_marks: 6,
             max_marks: 1000,
+            drop_chatter: true,
         });
         let mut out = Vec::new();
         for m in marks {
@@ -760,6 +770,7 @@ mod tests {
             gap_factor: 3.0,
             min_marks: 3,
             max_marks: 100_000,
+            drop_chatter: true,
         };
         let mut split = BurstSplitter::new(cfg);
         let mut out = Vec::new();
@@ -798,6 +809,7 @@ mod tests {
             gap_factor: 3.0,
             min_marks: 3,
             max_marks: 1000,
+            drop_chatter: true,
         };
         let mut split = BurstSplitter::new(cfg);
         let mut out = Vec::new();

@@ -154,6 +154,7 @@ impl Decoder {
         let decim = env.decim();
         let env_rate = rate / decim;
         let mut bcfg = BurstConfig::for_rate(rate);
+        bcfg.drop_chatter = !info.is_iq();
         if let Some(ms) = opts.press_gap_ms {
             bcfg.min_gap = ms * rate / 1e3;
         }
