@@ -207,7 +207,7 @@ impl ChatterFilter {
             let window: Vec<Mark> = self
                 .queue
                 .range(n - CHATTER_WINDOW..)
-                .map(|(m, _)| m.clone())
+                .map(|(m, _)| *m)
                 .collect();
             if is_regular(&window) {
                 for e in self.queue.range_mut(n - CHATTER_WINDOW..) {
@@ -618,7 +618,7 @@ mod tests {
             .map(|m| Mark {
                 rise: m.rise + d,
                 fall: m.fall + d,
-                ..m.clone()
+                ..*m
             })
             .collect()
     }
@@ -745,10 +745,10 @@ mod tests {
         let code = crate::coding::test_marks::pwm("1100101011110000", 35.0, 3);
         let mut marks = code.clone();
         // A header-like single mark inside is kept; stray marks at the ends are dropped.
-        let mut stray = code[0].clone();
+        let mut stray = code[0];
         stray.rise -= 900.0;
         stray.fall = stray.rise + 61.0;
-        let mut after = code[code.len() - 1].clone();
+        let mut after = code[code.len() - 1];
         after.rise += 700.0;
         after.fall = after.rise + 9.0;
         marks.insert(0, stray);
