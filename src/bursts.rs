@@ -17,7 +17,7 @@
 //! use ooksift::bursts::{BurstConfig, BurstSplitter};
 //! use ooksift::edges::Mark;
 //! let mk = |r: f64| Mark { rise: r, fall: r + 10.0, level: 1.0, noise: 0.01, lag: Default::default() };
-//! let mut split = BurstSplitter::new(BurstConfig { min_gap: 1000.0, gap_factor: 3.0, min_marks: 2, max_marks: 100, drop_chatter: true });
+//! let mut split = BurstSplitter::new(BurstConfig { min_gap: 1000.0, gap_factor: 3.0, min_strong_width: 0.0, min_marks: 2, max_marks: 100, drop_chatter: true });
 //! let mut out = Vec::new();
 //! for r in [0.0, 30.0, 60.0, 5000.0, 5030.0] { split.push(mk(r), &mut out); }
 //! split.finish(&mut out);
@@ -340,14 +340,33 @@ pub fn refine(marks: Vec<Mark>, min_gap: f64) -> Vec<Vec<Mark>> {
     parts
 }
 
-/// The level of a burst's strong marks: the 90th percentile of its mark levels (0 if empty).
+/// The level of a burst's strong marks: when the levels split clearly in two (Otsu's cut on
+/// their logarithms, the upper class at least twice the lower and at least six marks), the
+/// median of the upper class — noise marks may far outnumber a press's; otherwise the 90th
+/// percentile of all levels (0 if empty).
 fn reference_level(marks: &[Mark]) -> f32 {
-    let mut levels: Vec<f32> = marks.iter().map(|m| m.level).collect();
+    let mut levels: Vec<f32> = marks
+        .iter()
+        .map(|m| m.level)
+        .filter(|l| l.is_finite())
+        .collect();
     levels.sort_by(f32::total_cmp);
-    levels
+    let p90 = levels
         .get(((levels.len().max(1) - 1) as f64 * 0.9) as usize)
         .copied()
-        .unwrap_or(0.0)
+        .unwrap_or(0.0);
+    let positive: Vec<f64> = levels
+        .iter()
+        .filter(|&&l| l > 0.0)
+        .map(|&l| l as f64)
+        .collect();
+    if let Some((lo, hi)) = crate::timing::split_two(&positive) {
+        if hi.count >= 6 && hi.mean >= 2.0 * lo.mean {
+            let upper = &positive[positive.len() - hi.count..];
+            return upper[upper.len() / 2] as f32;
+        }
+    }
+    p90
 }
 
 /// Marks weaker than this fraction of a burst's strong marks are noise.
@@ -361,6 +380,9 @@ pub struct BurstConfig {
     /// Silence, in multiples of the longest space so far, that ends a burst when longer
     /// than `min_gap`.
     pub gap_factor: f64,
+    /// Marks shorter than this neither open a burst nor keep one open: near the floor of a
+    /// wide channel, noise peaks reach half a button's level but last only a few samples.
+    pub min_strong_width: f64,
     /// Bursts with fewer marks are noise.
     pub min_marks: usize,
     /// Marks kept per burst at most (a limit, reported when hit).
@@ -377,6 +399,7 @@ impl BurstConfig {
         BurstConfig {
             min_gap: 0.080 * rate_hz,
             gap_factor: 3.0,
+            min_strong_width: 40e-6 * rate_hz,
             min_marks: 6,
             max_marks: 20_000,
             drop_chatter: true,
@@ -509,15 +532,22 @@ impl BurstSplitter {
         self.last_fall = Some(m.fall);
         if self.current.is_empty() {
             // NaN levels compare false: such a mark opens nothing.
-            let opens = m.level >= WEAK_FRACTION * self.chain_level;
+            let opens = m.level >= WEAK_FRACTION * self.chain_level
+                && m.width() >= self.cfg.min_strong_width;
             if !opens {
                 return;
             }
             self.level = m.level;
             self.last_strong_fall = m.fall;
-        } else if m.level >= WEAK_FRACTION * self.level {
+        } else if m.level >= WEAK_FRACTION * self.level && m.width() >= self.cfg.min_strong_width {
             self.longest_space = self.longest_space.max(m.rise - self.last_strong_fall);
-            self.level += 0.1 * (m.level - self.level);
+            // Fast attack, slow release: a press that follows noise marks in one burst
+            // raises the level at once, so the noise after it reads weak.
+            if m.level > self.level {
+                self.level = m.level;
+            } else {
+                self.level += 0.1 * (m.level - self.level);
+            }
             self.last_strong_fall = m.fall;
         }
         if self.current.len() < self.cfg.max_marks {
@@ -709,6 +739,7 @@ mod tests {
         let mut split = BurstSplitter::new(BurstConfig {
             min_gap: 8000.0,
             gap_factor: 3.0,
+            min_strong_width: 0.0,
             min_marks: 6,
             max_marks: 1000,
             drop_chatter: true,
@@ -768,6 +799,7 @@ mod tests {
         let cfg = BurstConfig {
             min_gap: 1000.0,
             gap_factor: 3.0,
+            min_strong_width: 0.0,
             min_marks: 3,
             max_marks: 100_000,
             drop_chatter: true,
@@ -807,6 +839,7 @@ mod tests {
         let cfg = BurstConfig {
             min_gap: 1000.0,
             gap_factor: 3.0,
+            min_strong_width: 0.0,
             min_marks: 3,
             max_marks: 1000,
             drop_chatter: true,

@@ -1052,12 +1052,33 @@ struct PlotArgs {
     /// End of the time window, seconds from the capture's start.
     #[arg(long, value_name = "S")]
     to: Option<f64>,
+    /// IQ files: show one carrier's channel instead of the whole band, and draw that channel's
+    /// decode. HZ is an offset from the centre frequency (e.g. 25000 or -40e3); the nearest
+    /// bursty carrier of the spectrum survey is taken when HZ lies inside its channel
+    /// (at least ±5 kHz). `strongest` takes the carrier with the highest peak. Reads the file
+    /// twice; not for standard input or envelope captures.
+    #[arg(long, value_name = "HZ|strongest", allow_hyphen_values = true, value_parser = parse_carrier)]
+    carrier: Option<ooksift::plot::ChannelChoice>,
     /// Silence in ms that always separates two presses (default 80).
     #[arg(long, value_name = "MS")]
     press_gap_ms: Option<f64>,
     /// Replace an existing output.
     #[arg(long)]
     force: bool,
+}
+
+/// `--carrier`: an offset in Hz, or `strongest`.
+fn parse_carrier(s: &str) -> Result<ooksift::plot::ChannelChoice, String> {
+    use ooksift::plot::ChannelChoice;
+    if s.eq_ignore_ascii_case("strongest") {
+        return Ok(ChannelChoice::Strongest);
+    }
+    match s.trim().parse::<f64>() {
+        Ok(f) if f.is_finite() => Ok(ChannelChoice::Nearest(f)),
+        _ => Err(format!(
+            "'{s}' is neither an offset in Hz (e.g. 25000, -40e3) nor 'strongest'"
+        )),
+    }
 }
 
 fn plot_cmd(a: PlotArgs) -> i32 {
@@ -1074,6 +1095,7 @@ fn plot_cmd(a: PlotArgs) -> i32 {
         },
         from_s: a.from,
         to_s: a.to,
+        channel: a.carrier.unwrap_or_default(),
         ..PlotOptions::default()
     };
     let data = match collect_path(&a.capture, &opts) {
@@ -1083,11 +1105,12 @@ fn plot_cmd(a: PlotArgs) -> i32 {
     match write_svg(&data, &a.out, a.force) {
         Ok(()) => {
             note!(
-                "ooksift: wrote {} ({} code(s), {:.3}–{:.3} s)",
+                "ooksift: wrote {} ({} code(s), {:.3}–{:.3} s, {})",
                 out_name,
                 data.report.codes.len(),
                 data.from_s,
-                data.to_s
+                data.to_s,
+                ooksift::plot::view_source(&data)
             );
             0
         }

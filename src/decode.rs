@@ -101,8 +101,8 @@ pub struct Decoder {
     presses: Vec<PressDecode>,
     /// Envelope kept for the second pass: from shortly before the open burst (or the last
     /// `margin` samples when none is open). `hist[0]` is envelope sample `hist_start`.
-    hist: Vec<f32>,
-    lag_hist: Vec<Complex32>,
+    hist: History<f32>,
+    lag_hist: History<Complex32>,
     hist_start: u64,
     margin: usize,
     max_hist: usize,
@@ -168,8 +168,8 @@ impl Decoder {
             marks: Vec::new(),
             closed: Vec::new(),
             presses: Vec::new(),
-            hist: Vec::new(),
-            lag_hist: Vec::new(),
+            hist: History::default(),
+            lag_hist: History::default(),
             hist_start: 0,
             margin: (env_rate * 0.025) as usize + 16,
             max_hist: (env_rate * 4.0) as usize + 4096,
@@ -224,9 +224,9 @@ impl Decoder {
         let keep_from = keep_from.min(self.hist_start + self.hist.len() as u64);
         if keep_from > self.hist_start {
             let n = ((keep_from - self.hist_start) as usize).min(self.hist.len());
-            self.hist.drain(..n);
+            self.hist.drop_front(n);
             let nl = n.min(self.lag_hist.len());
-            self.lag_hist.drain(..nl);
+            self.lag_hist.drop_front(nl);
             self.hist_start += n as u64;
         }
     }
@@ -234,19 +234,35 @@ impl Decoder {
     /// Second pass over one burst: the envelope re-smoothed to about a third of the burst's
     /// own short element, edges found again, and the press decoded from them. Returns `None`
     /// when the history no longer holds the burst or the smoothing would not change.
-    fn reslice(&self, burst: &Burst) -> Option<PressDecode> {
+    fn reslice(&self, burst: &Burst) -> Option<(Option<PressDecode>, Vec<Mark>)> {
         let mut cleaned = burst.marks.clone();
         crate::bursts::merge_glitches(&mut cleaned, frames::GLITCH_FRACTION);
         let rough = coding::assess(&cleaned).into_iter().next()?;
         let unit_env = rough.unit / self.env.decim();
         let half = ((0.3 * unit_env) / 2.0).floor() as usize;
+        let marks = self.smoothed_marks(burst, half, 16.0 * unit_env)?;
+        let press = frames::decode_press_with(
+            &Burst {
+                marks: marks.clone(),
+                capped: burst.capped,
+            },
+            &self.press_opts,
+        );
+        Some((press, marks))
+    }
+
+    /// The burst's envelope history (from a margin before it to `after` envelope samples
+    /// past it) smoothed by a centred moving average of `2·half + 1` samples, and its marks,
+    /// found with a lower threshold than the first pass's and placed by the area method, in
+    /// capture positions.
+    fn smoothed_marks(&self, burst: &Burst, half: usize, after: f64) -> Option<Vec<Mark>> {
         if half < 1 {
             return None;
         }
         let a = (self.env_index(burst.start()).floor() as i64 - self.margin as i64).max(0) as u64;
         // The first pass may have missed weak marks at either end: look a margin before and
-        // sixteen units after the burst.
-        let b = self.env_index(burst.end()).ceil() as u64 + (16.0 * unit_env).ceil() as u64;
+        // some units after the burst.
+        let b = self.env_index(burst.end()).ceil() as u64 + after.max(0.0).ceil() as u64;
         if a < self.hist_start {
             return None;
         }
@@ -295,13 +311,237 @@ impl Decoder {
                 ..m
             })
             .collect();
-        frames::decode_press_with(
-            &Burst {
-                marks,
-                capped: burst.capped,
-            },
-            &self.press_opts,
-        )
+        Some(marks)
+    }
+
+    /// Third reading of one burst: the most likely symbol sequence under one of the burst's
+    /// timing plans ([`crate::trellis`]), laid on the envelope history. Plans come from every
+    /// PWM/PPM hypothesis of the second pass's marks, the first pass's and a smoothing
+    /// ladder; all share one window and one pair of levels, the likeliest few are searched
+    /// with free and then exact frame lengths, and the likeliest reading that fits wins.
+    fn trellis_reading(
+        &self,
+        burst: &Burst,
+        second: Option<&[Mark]>,
+        known_bits: Option<usize>,
+    ) -> Option<PressDecode> {
+        // Marks to read a plan from: the second pass's, the first pass's, and the envelope
+        // smoothed over a ladder of fixed widths (near the noise floor the first two may not
+        // show the timing at all).
+        let mut bases: Vec<Vec<Mark>> = Vec::new();
+        if let Some(m) = second {
+            bases.push(m.to_vec());
+        }
+        bases.push(burst.marks.clone());
+        for us in LADDER_US {
+            let half = (us * 1e-6 * self.env_rate / 2.0).floor() as usize;
+            if let Some(m) = self.smoothed_marks(burst, half, us * 1e-6 * self.env_rate * 8.0) {
+                bases.push(m);
+            }
+        }
+        let mut plans: Vec<crate::trellis::PlanReading> = Vec::new();
+        for m in &bases {
+            for p in crate::trellis::plans_of(m) {
+                if !plans.iter().any(|q| same_plan(&q.plan, &p.plan)) {
+                    plans.push(p);
+                }
+            }
+        }
+        // One window and one set of levels for every plan, so their likelihoods compare.
+        let decim = self.env.decim();
+        let first_unit = plans.first()?.plan.unit / decim;
+        let a = (self.env_index(burst.start()).floor() as i64 - self.margin as i64).max(0) as u64;
+        // Sixteen units past the burst for marks the first pass missed at its end — in the
+        // units of the most trusted plan, never more than the burst is long (a plan read from
+        // noise may have an absurd unit).
+        let span = self.env_index(burst.end()) - self.env_index(burst.start());
+        let after = (16.0 * first_unit).min(span.max(0.0));
+        let b = self.env_index(burst.end()).ceil() as u64 + after.ceil() as u64;
+        if a < self.hist_start {
+            return None;
+        }
+        let lo = (a - self.hist_start) as usize;
+        let hi = ((b.saturating_sub(self.hist_start)) as usize).min(self.hist.len());
+        if hi <= lo + 16 {
+            return None;
+        }
+        let env = &self.hist[lo..hi];
+        let (idle, carrier, spread) = two_levels(env, (first_unit / 2.0).floor() as usize)?;
+        let mid = (idle + 0.5 * (carrier - idle)) as f32;
+        let llr: Vec<f32> = env.iter().map(|&x| x - mid).collect();
+        if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+            eprintln!("  trellis levels idle {idle:.4} carrier {carrier:.4} spread {spread:.4}");
+        }
+        let win = TrellisWindow {
+            a,
+            lo,
+            hi,
+            env,
+            llr: &llr,
+            idle,
+            carrier,
+            spread,
+        };
+        // Every plan scored once by its free search; the likeliest few get their unit fitted
+        // and the exact-length searches (the costly part).
+        let mut ranked: Vec<(f64, crate::trellis::Plan, &crate::trellis::PlanReading)> = plans
+            .iter()
+            .filter_map(|reading| {
+                let unit = reading.plan.unit / decim;
+                (unit >= 2.0).then(|| {
+                    let plan = crate::trellis::Plan {
+                        unit,
+                        ..reading.plan.clone()
+                    };
+                    (crate::trellis::segment(&llr, &plan).score, plan, reading)
+                })
+            })
+            .collect();
+        ranked.sort_by(|x, y| y.0.total_cmp(&x.0));
+        ranked.truncate(TRELLIS_EXACT_PLANS);
+        let fitted: Vec<(crate::trellis::Plan, &crate::trellis::PlanReading)> = ranked
+            .into_iter()
+            .map(|(_, plan, reading)| {
+                (
+                    crate::trellis::fit_unit(&llr, &plan, 0.15, 0.025).0,
+                    reading,
+                )
+            })
+            .collect();
+        // Plans compete by the likelihood of their best readings.
+        let mut best: Option<(f64, PressDecode)> = None;
+        for (plan, reading) in fitted {
+            let r = self
+                .trellis_with(burst, &win, plan, reading.line_code, known_bits)
+                .map(|(score, mut p)| {
+                    // The line-code evidence is the widths the plan was read from; the
+                    // trellis's own widths fit the plan by construction.
+                    p.score = reading.score;
+                    p.runner_up = reading.runner_up;
+                    (score, p)
+                });
+            if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+                if let Some((sc, p)) = &r {
+                    eprintln!(
+                        "  trellis reading score {sc:.1}: {} {} x{}",
+                        p.line_code,
+                        frames::bit_string(&p.bits),
+                        p.frames.len()
+                    );
+                }
+            }
+            best = match (best, r) {
+                (Some(b), Some(r)) if r.0 > b.0 => Some(r),
+                (b, r) => b.or(r),
+            };
+        }
+        best.map(|b| b.1)
+    }
+
+    /// One trellis search of `burst` under `plan` (capture samples) in the window `win`.
+    fn trellis_with(
+        &self,
+        burst: &Burst,
+        win: &TrellisWindow<'_>,
+        env_plan: crate::trellis::Plan,
+        line_code: coding::LineCode,
+        known_bits: Option<usize>,
+    ) -> Option<(f64, PressDecode)> {
+        let TrellisWindow {
+            a,
+            lo,
+            hi,
+            env,
+            llr,
+            idle,
+            spread,
+            ..
+        } = *win;
+        let mean = |v: &[f32]| v.iter().map(|&x| x as f64).sum::<f64>() / v.len() as f64;
+        let lag = &self.lag_hist;
+        let build = |spans: &[(f64, f64)]| -> Option<PressDecode> {
+            if spans.is_empty() {
+                return None;
+            }
+            let marks: Vec<Mark> = spans
+                .iter()
+                .map(|&(r, f)| {
+                    let (ri, fi) = (r as usize, (f as usize).min(env.len()));
+                    let level = if fi > ri {
+                        mean(&env[ri..fi]) - idle
+                    } else {
+                        0.0
+                    };
+                    let lag_sum = if lag.len() >= hi {
+                        lag[lo + ri..lo + fi]
+                            .iter()
+                            .map(|z| num_complex::Complex64::new(z.re as f64, z.im as f64))
+                            .sum()
+                    } else {
+                        num_complex::Complex64::default()
+                    };
+                    Mark {
+                        rise: self.env.position_of(r + a as f64),
+                        fall: self.env.position_of(f + a as f64),
+                        level: level as f32,
+                        noise: spread as f32,
+                        lag: lag_sum,
+                    }
+                })
+                .collect();
+            // The marks are read as the code the plan belongs to (a forced code must match).
+            if self.press_opts.line_code.is_some_and(|lc| lc != line_code) {
+                return None;
+            }
+            let opts = frames::PressOptions {
+                line_code: Some(line_code),
+                ..self.press_opts
+            };
+            frames::decode_press_with(
+                &Burst {
+                    marks,
+                    capped: burst.capped,
+                },
+                &opts,
+            )
+        };
+        // Frame lengths to search: the edge readings' and the free search's modal length.
+        let mut lengths: Vec<usize> = known_bits.into_iter().collect();
+        if let Some(n) = crate::trellis::segment(llr, &env_plan).modal_bits() {
+            if !lengths.contains(&n) {
+                lengths.push(n);
+            }
+        }
+        // The likeliest reading wins. A trellis lays perfect widths by construction, so a
+        // single clean-looking frame proves nothing: its readings need repeats that agree.
+        let mut best: Option<(f64, PressDecode)> = None;
+        for n in lengths {
+            let r = crate::trellis::segment_frames(llr, &env_plan, Some(n));
+            if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+                eprintln!(
+                    "  trellis {line_code} {:?} gap {:.1} unit {:.1}: {n} bits, score {:.1}, {} frames",
+                    env_plan.symbols.iter().map(|s| (s.mark, s.space)).collect::<Vec<_>>(),
+                    env_plan.gap_min,
+                    env_plan.unit,
+                    r.score,
+                    r.frames.len()
+                );
+            }
+            if best.as_ref().is_some_and(|b| b.0 >= r.score) {
+                continue;
+            }
+            let fit = r.fit(llr, 0.5 * (win.carrier - idle));
+            if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+                eprintln!("    fit {fit:.2}");
+            }
+            if fit < MIN_TRELLIS_FIT {
+                continue;
+            }
+            if let Some(p) = build(&r.marks).filter(|p| p.frames.len() >= 2) {
+                best = Some((r.score, p));
+            }
+        }
+        best
     }
 
     fn route_marks(&mut self) {
@@ -324,8 +564,45 @@ impl Decoder {
                     self.info.rate.to_s(b.start())
                 ));
             }
+            if std::env::var_os("OOKSIFT_DEBUG_MARKS").is_some() {
+                for m in b.marks.iter().take(40) {
+                    eprintln!(
+                        "  mark {:.5} s width {:.1} µs level {:.4} noise {:.4}",
+                        self.info.rate.to_s(m.rise),
+                        self.info.rate.to_s(m.width()) * 1e6,
+                        m.level,
+                        m.noise
+                    );
+                }
+            }
             let first = frames::decode_press_with(&b, &self.press_opts);
-            let second = self.reslice(&b);
+            let (second, second_marks) = match self.reslice(&b) {
+                Some((p, m)) => (p, Some(m)),
+                None => (None, None),
+            };
+            let known = [&first, &second]
+                .into_iter()
+                .flatten()
+                .filter(|p| p.frames.len() >= 2)
+                .map(|p| p.bits.len())
+                .next();
+            // A clean edge reading (every frame full and exact) leaves the trellis nothing to
+            // win: it replaces a reading only with more full frames or fewer corrections.
+            let clean = [&first, &second]
+                .into_iter()
+                .flatten()
+                .any(|p| p.frames.len() >= 2 && p.corrected_bits == 0 && p.partial_frames == 0);
+            // Nor a burst the edges read as another line code with repeats: the trellis knows
+            // PWM and PPM only (a neighbour's keying sidebands often read as Manchester).
+            let other_code = [&first, &second].into_iter().flatten().any(|p| {
+                p.frames.len() >= 2
+                    && !matches!(p.line_code, coding::LineCode::Pwm | coding::LineCode::Ppm)
+            });
+            let third = if clean || other_code || std::env::var_os("OOKSIFT_NO_TRELLIS").is_some() {
+                None
+            } else {
+                self.trellis_reading(&b, second_marks.as_deref(), known)
+            };
             if std::env::var_os("OOKSIFT_DEBUG").is_some() {
                 let d = |p: &Option<PressDecode>| {
                     p.as_ref().map(|p| {
@@ -337,15 +614,16 @@ impl Decoder {
                     })
                 };
                 eprintln!(
-                    "burst {:.4}..{:.4} s, {} marks: first {:?} second {:?}",
+                    "burst {:.4}..{:.4} s, {} marks: first {:?} second {:?} trellis {:?}",
                     self.info.rate.to_s(b.start()),
                     self.info.rate.to_s(b.end()),
                     b.marks.len(),
                     d(&first),
-                    d(&second)
+                    d(&second),
+                    d(&third)
                 );
             }
-            match better(first, second) {
+            match prefer_trellis(better(first, second), third) {
                 Some(p) if self.presses.len() < self.max_presses => self.presses.push(p),
                 Some(_) => {
                     if !self.notes.iter().any(|n| n.starts_with("press limit")) {
@@ -418,6 +696,48 @@ impl Decoder {
     }
 }
 
+/// A sample history that drops from the front in amortised constant time: dropped samples
+/// are only skipped, and the live ones move to the front of the buffer once the skipped
+/// part is at least as long as they are (dropping with `Vec::drain` moved the whole live
+/// history on every block). Reads see the live samples as a slice.
+#[derive(Debug, Clone)]
+struct History<T> {
+    buf: Vec<T>,
+    /// Samples at the front of `buf` already dropped.
+    skip: usize,
+}
+
+impl<T> Default for History<T> {
+    fn default() -> Self {
+        History {
+            buf: Vec::new(),
+            skip: 0,
+        }
+    }
+}
+
+impl<T: Copy> History<T> {
+    fn extend_from_slice(&mut self, v: &[T]) {
+        self.buf.extend_from_slice(v);
+    }
+
+    /// Drops the `n` oldest live samples (all of them when fewer are held).
+    fn drop_front(&mut self, n: usize) {
+        self.skip = (self.skip + n).min(self.buf.len());
+        if self.skip >= 4096 && self.skip >= self.buf.len() - self.skip {
+            self.buf.drain(..self.skip);
+            self.skip = 0;
+        }
+    }
+}
+
+impl<T> std::ops::Deref for History<T> {
+    type Target = [T];
+    fn deref(&self) -> &[T] {
+        self.buf.get(self.skip..).unwrap_or(&[])
+    }
+}
+
 /// A centred moving average of `2·half + 1` samples (shorter at the ends).
 fn centred_average(x: &[f32], half: usize) -> Vec<f32> {
     let n = x.len();
@@ -451,6 +771,99 @@ fn better(a: Option<PressDecode>, b: Option<PressDecode>) -> Option<PressDecode>
             Some(if key(&b) >= key(&a) { b } else { a })
         }
         (a, b) => a.or(b),
+    }
+}
+
+/// The envelope window of one burst the trellis searches, with its levels.
+#[derive(Clone, Copy)]
+struct TrellisWindow<'a> {
+    /// Envelope index of `env[0]`.
+    a: u64,
+    /// `env` as a range of the history.
+    lo: usize,
+    hi: usize,
+    env: &'a [f32],
+    llr: &'a [f32],
+    idle: f64,
+    carrier: f64,
+    spread: f64,
+}
+
+/// Idle and carrier levels of a burst's envelope and the idle spread: the envelope averaged
+/// over about a unit (`2·half + 1` samples) splits into two classes at the cut that maximises
+/// the between-class variance (Otsu's method); the class means of the raw samples on either
+/// side are the levels. `None` when the envelope shows no two levels.
+fn two_levels(env: &[f32], half: usize) -> Option<(f64, f64, f64)> {
+    if env.len() < 16 {
+        return None;
+    }
+    let smooth = centred_average(env, half.max(1));
+    let mut sorted = smooth.clone();
+    sorted.sort_by(f32::total_cmp);
+    let n = sorted.len() as f64;
+    let total: f64 = sorted.iter().map(|&x| x as f64).sum();
+    let (mut acc, mut best) = (0.0f64, (f64::MIN, sorted[0]));
+    for k in 1..sorted.len() {
+        acc += sorted[k - 1] as f64;
+        let n0 = k as f64;
+        let m0 = acc / n0;
+        let m1 = (total - acc) / (n - n0);
+        let between = n0 * (n - n0) * (m1 - m0).powi(2);
+        if between > best.0 {
+            best = (between, sorted[k]);
+        }
+    }
+    let cut = best.1;
+    let (mut s0, mut q0, mut c0, mut s1, mut c1) = (0.0f64, 0.0f64, 0usize, 0.0f64, 0usize);
+    for (&x, &m) in env.iter().zip(&smooth) {
+        if m < cut {
+            s0 += x as f64;
+            q0 += (x as f64).powi(2);
+            c0 += 1;
+        } else {
+            s1 += x as f64;
+            c1 += 1;
+        }
+    }
+    if c0 < 8 || c1 < 8 {
+        return None;
+    }
+    let (idle, carrier) = (s0 / c0 as f64, s1 / c1 as f64);
+    let spread = (q0 / c0 as f64 - idle * idle).max(0.0).sqrt();
+    (carrier > idle).then_some((idle, carrier, spread))
+}
+
+/// Plans (the likeliest by their free search) that get the exact-length searches.
+const TRELLIS_EXACT_PLANS: usize = 3;
+
+/// Lowest fit of a trellis reading: the mean log-likelihood ratio under its marks, and minus
+/// that under the spaces inside its frames, as a fraction of half the level difference (1 for
+/// a reading that lays every mark and space where they are).
+const MIN_TRELLIS_FIT: f64 = 0.9;
+
+/// Smoothing widths (µs) the trellis stage reads timing plans from, besides the first and
+/// second passes' marks.
+const LADDER_US: [f64; 3] = [120.0, 250.0, 500.0];
+
+/// Plans alike enough to give the same search.
+fn same_plan(a: &crate::trellis::Plan, b: &crate::trellis::Plan) -> bool {
+    (a.unit - b.unit).abs() <= 0.03 * a.unit
+        && a.symbols == b.symbols
+        && a.header == b.header
+        && a.closing == b.closing
+}
+
+/// The trellis reading replaces the edge-based one only when it holds more full frames, or as
+/// many with fewer corrected bits: on clean bursts the edge-based reading keeps its
+/// sub-sample edges.
+fn prefer_trellis(edges: Option<PressDecode>, trellis: Option<PressDecode>) -> Option<PressDecode> {
+    match (edges, trellis) {
+        (Some(e), Some(t)) => {
+            let wins = t.frames.len() > e.frames.len()
+                || (t.frames.len() == e.frames.len() && t.corrected_bits < e.corrected_bits);
+            Some(if wins { t } else { e })
+        }
+        (e, t) => e.or(t),
     }
 }
 
@@ -549,9 +962,7 @@ fn survey_with_mean_progress(
     while let Some(block) = src.next_block()? {
         if let Samples::Iq(iq) = block {
             survey.push(iq);
-            for z in iq {
-                sum += num_complex::Complex64::new(z.re as f64, z.im as f64);
-            }
+            sum += sum_iq(iq);
             n += iq.len() as u64;
             tick(n);
         }
@@ -561,6 +972,29 @@ fn survey_with_mean_progress(
         survey.finish(),
         num_complex::Complex32::new(mean.re as f32, mean.im as f32),
     ))
+}
+
+/// Σ z over a block in f64, in four interleaved partial sums (independent additions the CPU
+/// overlaps; one running sum waited on every addition). Used for the DC estimate, which is
+/// then rounded to f32: the different summation order moves it by ~1e-16 relative.
+fn sum_iq(iq: &[Complex32]) -> num_complex::Complex64 {
+    let mut re = [0f64; 4];
+    let mut im = [0f64; 4];
+    let mut quads = iq.chunks_exact(4);
+    for q in &mut quads {
+        for l in 0..4 {
+            re[l] += q[l].re as f64;
+            im[l] += q[l].im as f64;
+        }
+    }
+    for (l, z) in quads.remainder().iter().enumerate() {
+        re[l] += z.re as f64;
+        im[l] += z.im as f64;
+    }
+    num_complex::Complex64::new(
+        (re[0] + re[1]) + (re[2] + re[3]),
+        (im[0] + im[1]) + (im[2] + im[3]),
+    )
 }
 
 /// One channel per bursty carrier, strongest first: bandwidth twice the carrier's occupied

@@ -95,7 +95,14 @@ pub struct EdgeDetector {
     /// The warm-up samples, for a floor estimate from their lower part.
     warm: Vec<f32>,
     recent_level: f32,
+    /// The last `hist_len` samples, at `index & (ring.len() - 1)` (a power-of-two ring, so no
+    /// division per sample).
     ring: Vec<f32>,
+    /// Samples of history the detector looks back on (`cfg.history`, at least 4).
+    hist_len: usize,
+    /// `1 / cfg.floor_tau` and `1 − 1 / cfg.level_tau`, worked out once.
+    floor_step: f32,
+    level_decay: f32,
     in_mark: bool,
     det: u64,
     rise_buf: Vec<f32>,
@@ -115,7 +122,10 @@ impl EdgeDetector {
     pub fn new(cfg: EdgeConfig) -> EdgeDetector {
         let k = cfg.history.max(4);
         EdgeDetector {
-            ring: vec![0.0; k],
+            ring: vec![0.0; k.next_power_of_two()],
+            hist_len: k,
+            floor_step: 1.0 / cfg.floor_tau,
+            level_decay: 1.0 - 1.0 / cfg.level_tau,
             rise_buf: Vec::with_capacity(2 * k),
             cfg,
             idx: 0,
@@ -163,30 +173,37 @@ impl EdgeDetector {
     }
 
     fn ring_get(&self, i: u64) -> f32 {
-        self.ring[(i % self.ring.len() as u64) as usize]
+        let mask = self.ring.len() - 1;
+        self.ring.get(i as usize & mask).copied().unwrap_or(0.0)
     }
 
     /// Feeds envelope samples; completed marks are appended to `out`.
     /// `lag` holds the lag-1 IQ products per sample, or is empty for envelope input.
     pub fn process(&mut self, env: &[f32], lag: &[Complex32], out: &mut Vec<Mark>) {
-        let k = self.ring.len();
+        let mask = self.ring.len() - 1;
+        let wide = |n: usize| {
+            lag.get(n)
+                .map(|c| Complex64::new(c.re as f64, c.im as f64))
+                .unwrap_or_default()
+        };
         for (n, &x) in env.iter().enumerate() {
             let i = self.idx;
-            self.ring[(i % k as u64) as usize] = x;
-            let l = lag
-                .get(n)
-                .map(|c| Complex64::new(c.re as f64, c.im as f64))
-                .unwrap_or_default();
+            if let Some(r) = self.ring.get_mut(i as usize & mask) {
+                *r = x;
+            }
             if !self.in_mark {
-                self.idle_sample(i, x, l);
+                if self.idle_sample(x) {
+                    self.start_mark(i, x, wide(n));
+                }
             } else {
-                self.mark_sample(i, x, l, out);
+                self.mark_sample(i, x, wide(n), out);
             }
             self.idx += 1;
         }
     }
 
-    fn idle_sample(&mut self, i: u64, x: f32, l: Complex64) {
+    /// Tracks the floor on an idle sample; true when the sample starts a mark instead.
+    fn idle_sample(&mut self, x: f32) -> bool {
         if self.seen < self.cfg.warmup as u64 {
             self.seen += 1;
             let a = 1.0 / self.seen as f32;
@@ -196,12 +213,11 @@ impl EdgeDetector {
             if self.seen == self.cfg.warmup as u64 {
                 self.floor_from_warmup();
             }
-            return;
+            return false;
         }
         let thr = self.floor + (self.cfg.on_sigma * self.sigma()).max(0.5 * self.recent_level);
         if x > thr && x - self.floor > 1e-7 {
-            self.start_mark(i, x, l);
-            return;
+            return true;
         }
         // Robust tracking: a sample far above the floor (a weak mark not yet detected, an
         // interferer) moves the floor and the spread only as far as a clipped value would,
@@ -212,7 +228,7 @@ impl EdgeDetector {
         // learnt from the samples below the floor alone. Neither can then be pulled up by
         // signal until it hides itself. Only a drop far below the floor (a capture that began
         // inside a mark) is followed at once.
-        let a = 1.0 / self.cfg.floor_tau;
+        let a = self.floor_step;
         let sigma = self.sigma().max(1e-9);
         let d = x - self.floor;
         if d < -4.0 * sigma {
@@ -229,7 +245,8 @@ impl EdgeDetector {
                 self.dev += a * (-d - self.dev);
             }
         }
-        self.recent_level *= 1.0 - 1.0 / self.cfg.level_tau;
+        self.recent_level *= self.level_decay;
+        false
     }
 
     /// Floor and spread from the lower part of the warm-up (issue 4): a superregenerative
@@ -253,7 +270,7 @@ impl EdgeDetector {
     }
 
     fn start_mark(&mut self, i: u64, x: f32, l: Complex64) {
-        let k = self.ring.len() as u64;
+        let k = self.hist_len as u64;
         self.in_mark = true;
         self.det = i;
         let from = i.saturating_sub(k - 1).max(self.free_from);
@@ -270,7 +287,7 @@ impl EdgeDetector {
     }
 
     fn mark_sample(&mut self, i: u64, x: f32, l: Complex64, out: &mut Vec<Mark>) {
-        if self.rise_buf.len() < 2 * self.ring.len() {
+        if self.rise_buf.len() < 2 * self.hist_len {
             self.rise_buf.push(x);
         }
         let plateau = (self.sum / self.cnt as f64) as f32;
@@ -365,7 +382,7 @@ impl EdgeDetector {
 
     /// Downward midpoint crossing nearest the first sample below the release level.
     fn find_fall(&self, last: u64, mid: f32) -> f64 {
-        let k = self.ring.len() as u64;
+        let k = self.hist_len as u64;
         let lo = last.saturating_sub(k - 1).max(self.det);
         let mut f = self.first_below.clamp(lo, last);
         if self.ring_get(f) < mid {

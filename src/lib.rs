@@ -26,4 +26,5 @@ pub mod rng;
 pub mod source;
 pub mod synth;
 pub mod timing;
+pub mod trellis;
 pub mod units;

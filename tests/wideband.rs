@@ -194,3 +194,41 @@ fn spectrum_lists_the_carriers_and_flags_the_tone_continuous() {
         Some("bursty".into())
     );
 }
+
+#[test]
+fn presses_seconds_apart_in_a_long_noisy_capture_stay_apart() {
+    // Regression: noise marks in a wide channel (about 4σ, a fifth of the button's level,
+    // hundreds a second) opened a burst long before a press and kept it open past the next
+    // press; with far more noise marks than press marks the burst's reference level was a
+    // noise level, so nothing was dropped as weak and the presses 14.5 s apart ran together
+    // (seen on the 66 s throughput capture of docs/benchmarks.md §2). Before the fix this
+    // capture decoded one press of two.
+    let d = tempfile::tempdir().expect("tempdir");
+    let out = d.path().join("apart.cu8");
+    let press = "pwm:0xb2e169,unit_us=350,repeats=8,offset_hz=100000";
+    let first = format!("{press},gap_ms=14500");
+    let truth = synth(
+        &out,
+        &[
+            "--rate",
+            "1024000",
+            "--amplitude",
+            "0.05",
+            "--snr-db",
+            "22",
+            "--seed",
+            "7",
+            "--lead-ms",
+            "500",
+            "--duration-ms",
+            "16000",
+            "--press",
+            &first,
+            "--press",
+            press,
+        ],
+    );
+    let report = decode_json(&out, &["--rate", "1024000"]);
+    assert_report_matches(&report, &truth, 1000.0, "seconds apart");
+    assert_eq!(report["codes"][0]["presses"], 2, "{report}");
+}

@@ -170,29 +170,41 @@ impl Restorer {
         // The split is judged on a 60 µs moving average (the decoder's own smoothing), so
         // per-sample noise does not hide the two levels.
         let k = ((self.rate_hz * 60e-6).round() as usize).max(1);
-        let mut buf = std::mem::take(&mut self.scratch);
-        let eval = |alpha: Option<f64>, buf: &mut Vec<f32>| {
-            Restorer::restore(self.state, y, alpha, buf);
-            smooth(buf, k);
-            split(buf)
-        };
-        let none = eval(None, &mut buf)?;
-        let mut best: (Split, Option<f64>) = (none, None);
+        let mut taus = Vec::new();
         let mut tau = 0.3e-3;
         while tau <= 3.0 {
-            if let Some(sp) = eval(Some(self.alpha(tau)), &mut buf) {
+            taus.push(tau);
+            tau *= 1.2;
+        }
+        // Every candidate restored and split: "none" first, then each τ in turn. Candidates
+        // run GROUP at a time through one pass over the window (independent recursions the
+        // CPU overlaps); each gets the same arithmetic as on its own.
+        let alphas: Vec<Option<f64>> = std::iter::once(None)
+            .chain(taus.iter().map(|&t| Some(self.alpha(t))))
+            .collect();
+        let mut bufs: [Vec<f32>; GROUP] = Default::default();
+        let mut ring = Vec::new();
+        let mut splits: Vec<Option<Split>> = Vec::with_capacity(alphas.len());
+        for chunk in alphas.chunks(GROUP) {
+            let mut group = [None; GROUP];
+            group[..chunk.len()].copy_from_slice(chunk);
+            restore_smoothed(self.state, y, group, k, &mut ring, &mut bufs);
+            splits.extend(bufs.iter().take(chunk.len()).map(|b| split(b)));
+        }
+        let none = splits.first().copied().flatten()?;
+        let mut best: (Split, Option<f64>) = (none, None);
+        for (&tau, sp) in taus.iter().zip(splits.iter().skip(1)) {
+            if let Some(sp) = sp {
                 if sp.within < best.0.within {
-                    best = (sp, Some(tau));
+                    best = (*sp, Some(tau));
                 }
             }
-            tau *= 1.2;
         }
         let (sp, tau_s) = if best.0.within < 0.8 * none.within {
             best
         } else {
             (none, None)
         };
-        self.scratch = buf;
         if std::env::var_os("OOKSIFT_DEBUG").is_some() {
             eprintln!("restorer: {sp:?} tau {tau_s:?} (none: {none:?})");
         }
@@ -207,17 +219,69 @@ impl Restorer {
     }
 }
 
-/// Trailing moving average of `k` samples, in place.
-fn smooth(v: &mut [f32], k: usize) {
-    if k <= 1 {
-        return;
+/// Candidates restored together in one pass by [`restore_smoothed`].
+const GROUP: usize = 4;
+
+/// For each of `GROUP` coefficients, [`Restorer::restore`] from `state` followed by a
+/// trailing moving average of `k` samples, into `outs` (the same arithmetic, in the same
+/// order, as the two passes one after the other for each candidate alone). `ring` is scratch
+/// space for the averages.
+fn restore_smoothed(
+    state: Option<(f64, f64)>,
+    y: &[f32],
+    alphas: [Option<f64>; GROUP],
+    k: usize,
+    ring: &mut Vec<f32>,
+    outs: &mut [Vec<f32>; GROUP],
+) {
+    let k = k.max(1);
+    for o in outs.iter_mut() {
+        o.clear();
+        o.reserve(y.len());
     }
-    let mut acc = 0.0f64;
-    let mut ring = vec![0.0f32; k];
-    for (i, x) in v.iter_mut().enumerate() {
-        let old = std::mem::replace(&mut ring[i % k], *x);
-        acc += *x as f64 - old as f64;
-        *x = (acc / (i + 1).min(k) as f64) as f32;
+    ring.clear();
+    ring.resize(k * GROUP, 0.0);
+    let first = y.first().copied().unwrap_or(0.0) as f64;
+    let (mut yp, xp0) = state.unwrap_or((first, first));
+    let mut xp = [xp0; GROUP];
+    let mut acc = [0f64; GROUP];
+    // Lanes without a coefficient compute with 1 and take the input instead.
+    let a4 = alphas.map(|a| a.unwrap_or(1.0));
+    let pos_cut = k * GROUP;
+    let mut pos = 0usize;
+    for (i, &v) in y.iter().enumerate() {
+        let v = v as f64;
+        let n = (i + 1).min(k) as f64;
+        let mut xf = [0f32; GROUP];
+        for g in 0..GROUP {
+            let x = if alphas[g].is_some() {
+                xp[g] + v / a4[g] - yp
+            } else {
+                v
+            };
+            xp[g] = x;
+            xf[g] = x as f32;
+        }
+        yp = v;
+        let mut q = xf;
+        if k > 1 {
+            let mut old = [0f32; GROUP];
+            if let Some(slots) = ring.get_mut(pos..pos + GROUP) {
+                old.copy_from_slice(slots);
+                slots.copy_from_slice(&xf);
+            }
+            for g in 0..GROUP {
+                acc[g] += xf[g] as f64 - old[g] as f64;
+                q[g] = (acc[g] / n) as f32;
+            }
+        }
+        for (o, &val) in outs.iter_mut().zip(&q) {
+            o.push(val);
+        }
+        pos += GROUP;
+        if pos == pos_cut {
+            pos = 0;
+        }
     }
 }
 
@@ -233,24 +297,44 @@ struct Split {
 }
 
 fn split(v: &[f32]) -> Option<Split> {
-    let (mut lo, mut hi) = (f32::INFINITY, f32::NEG_INFINITY);
-    for &x in v {
-        if x.is_finite() {
-            lo = lo.min(x);
-            hi = hi.max(x);
+    // Range of the finite values, in four lanes (min and max give the same extremes in any
+    // order; the lanes only shorten the chain of dependent comparisons).
+    let (mut lo4, mut hi4) = ([f32::INFINITY; 4], [f32::NEG_INFINITY; 4]);
+    for quad in v.chunks(4) {
+        for ((lo, hi), &x) in lo4.iter_mut().zip(hi4.iter_mut()).zip(quad) {
+            if x.is_finite() {
+                *lo = if x < *lo { x } else { *lo };
+                *hi = if x > *hi { x } else { *hi };
+            }
         }
     }
+    let lo = lo4
+        .iter()
+        .fold(f32::INFINITY, |a, &b| if b < a { b } else { a });
+    let hi = hi4
+        .iter()
+        .fold(f32::NEG_INFINITY, |a, &b| if b > a { b } else { a });
     if hi.partial_cmp(&lo) != Some(std::cmp::Ordering::Greater) {
         return None;
     }
     const BINS: usize = 256;
     let scale = BINS as f64 / (hi - lo) as f64;
-    let mut hist = [0u64; BINS];
-    for &x in v {
-        if x.is_finite() {
-            let b = (((x - lo) as f64) * scale) as usize;
-            hist[b.min(BINS - 1)] += 1;
+    // Four histograms taken in turn, then added: smoothed neighbours mostly fall in one bin,
+    // and a single histogram would wait on its own last increment every sample.
+    let mut part = [[0u64; BINS]; 4];
+    for quad in v.chunks(4) {
+        for (h, &x) in part.iter_mut().zip(quad) {
+            if x.is_finite() {
+                let b = (((x - lo) as f64) * scale) as usize;
+                if let Some(c) = h.get_mut(b.min(BINS - 1)) {
+                    *c += 1;
+                }
+            }
         }
+    }
+    let mut hist = [0u64; BINS];
+    for (b, c) in hist.iter_mut().enumerate() {
+        *c = part.iter().map(|h| h[b]).sum();
     }
     let centre = |b: usize| lo as f64 + (b as f64 + 0.5) / scale;
     let n: u64 = hist.iter().sum();
@@ -326,6 +410,46 @@ mod tests {
         }
         r.flush(&mut out);
         (out, r.setting())
+    }
+
+    /// The grouped one-pass restore + average gives, bit for bit, what the two passes give
+    /// one after the other for each candidate alone (the plain definition written out here).
+    #[test]
+    fn grouped_restore_matches_two_passes() {
+        let rate = 48_000.0;
+        let y = signal(rate, 0.3, Some(2e-3), true, 0.02);
+        let r = Restorer::new(rate);
+        let state = Some((0.01, -0.02));
+        for k in [1usize, 3, 7] {
+            let alphas = [
+                None,
+                Some(r.alpha(0.4e-3)),
+                Some(r.alpha(0.05)),
+                Some(r.alpha(2.5)),
+            ];
+            let mut ring = Vec::new();
+            let mut outs: [Vec<f32>; GROUP] = Default::default();
+            restore_smoothed(state, &y, alphas, k, &mut ring, &mut outs);
+            for (g, alpha) in alphas.into_iter().enumerate() {
+                let mut want = Vec::new();
+                Restorer::restore(state, &y, alpha, &mut want);
+                if k > 1 {
+                    let mut acc = 0.0f64;
+                    let mut win = vec![0.0f32; k];
+                    for (i, x) in want.iter_mut().enumerate() {
+                        let old = std::mem::replace(&mut win[i % k], *x);
+                        acc += *x as f64 - old as f64;
+                        *x = (acc / (i + 1).min(k) as f64) as f32;
+                    }
+                }
+                assert_eq!(outs[g].len(), y.len());
+                let same = outs[g]
+                    .iter()
+                    .zip(&want)
+                    .all(|(a, b)| a.to_bits() == b.to_bits());
+                assert!(same, "candidate {g}, k {k}: grouped pass differs");
+            }
+        }
     }
 
     #[test]

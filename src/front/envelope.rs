@@ -82,7 +82,10 @@ impl Smoother {
                 self.lag_sum.im as f32,
             ));
         }
-        self.pos = (self.pos + 1) % self.ring.len();
+        self.pos += 1;
+        if self.pos == self.ring.len() {
+            self.pos = 0;
+        }
     }
 }
 

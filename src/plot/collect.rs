@@ -3,9 +3,11 @@
 use super::{EnvelopeColumn, PlotData, PlotError, PlotOptions};
 use crate::decode::Decoder;
 use crate::edges::{EdgeConfig, EdgeDetector, Mark};
-use crate::front::envelope::WideEnvelope;
+use crate::front::channel::ChannelPlan;
+use crate::front::envelope::{ChannelEnvelope, EnvelopeBlock, WideEnvelope};
 use crate::source::{CaptureInfo, Samples};
 use crate::units::Rate;
+use num_complex::Complex32;
 
 /// Envelope samples fed to the edge detector between two readings of its floor.
 const LEVEL_STEP: usize = 64;
@@ -204,16 +206,83 @@ impl LightEnvelope {
     }
 }
 
+/// The envelope the view draws: the whole band (or recorded envelope), or one carrier's
+/// channel, each built with the same settings as the decoder beside it.
+enum PlotFront {
+    Wide {
+        /// Time base only (`position_of`, `index_of`, `decim`).
+        base: WideEnvelope,
+        light: LightEnvelope,
+    },
+    Channel {
+        ch: Box<ChannelEnvelope>,
+        out: EnvelopeBlock,
+    },
+}
+
+impl PlotFront {
+    fn position_of(&self, k: f64) -> f64 {
+        match self {
+            PlotFront::Wide { base, .. } => base.position_of(k),
+            PlotFront::Channel { ch, .. } => ch.position_of(k),
+        }
+    }
+
+    fn index_of(&self, pos: f64) -> f64 {
+        match self {
+            PlotFront::Wide { base, .. } => base.index_of(pos),
+            PlotFront::Channel { ch, .. } => ch.index_of(pos),
+        }
+    }
+
+    /// Capture samples per envelope sample.
+    fn decim(&self) -> f64 {
+        match self {
+            PlotFront::Wide { base, .. } => base.decim() as f64,
+            PlotFront::Channel { ch, .. } => ch.plan().decim as f64,
+        }
+    }
+
+    fn process(&mut self, block: Samples<'_>, env: &mut Vec<f32>) {
+        match self {
+            PlotFront::Wide { light, .. } => light.process(block, env),
+            PlotFront::Channel { ch, out } => {
+                if let Samples::Iq(iq) = block {
+                    out.clear();
+                    ch.process(iq, out);
+                    env.extend_from_slice(&out.env);
+                }
+            }
+        }
+    }
+}
+
+/// Checks the window of `opts`; returns its start (seconds).
+pub(crate) fn check_window(opts: &PlotOptions) -> Result<f64, PlotError> {
+    let from_s = opts.from_s.unwrap_or(0.0);
+    if !from_s.is_finite() || from_s < 0.0 {
+        return Err(PlotError::Window(format!(
+            "--from {from_s} must be ≥ 0 seconds"
+        )));
+    }
+    if let Some(t) = opts.to_s {
+        if !t.is_finite() || t <= from_s {
+            return Err(PlotError::Window(format!(
+                "--to {t} must be later than --from {from_s}"
+            )));
+        }
+    }
+    Ok(from_s)
+}
+
 /// Streams a capture into a [`Decoder`] and, beside it, gathers what the envelope view needs.
 ///
 /// The envelope and edge stages are run a second time with the decoder's own settings
-/// (the decoder keeps its internals private), so the band, floor and marks drawn are what the
-/// first pass of the decoder saw.
+/// (the decoder keeps its internals private), so the band (or channel), floor and marks drawn
+/// are what the first pass of the decoder saw.
 pub struct PlotCollector {
     decoder: Decoder,
-    /// Time base only (`position_of`, `index_of`, `decim`).
-    env: WideEnvelope,
-    light: LightEnvelope,
+    front: PlotFront,
     edges: EdgeDetector,
     on_sigma: f32,
     block: Vec<f32>,
@@ -228,30 +297,50 @@ pub struct PlotCollector {
 }
 
 impl PlotCollector {
-    /// A collector for the capture `info` describes; checks the window.
+    /// A whole-band collector for the capture `info` describes; checks the window.
     pub fn new(info: CaptureInfo, opts: &PlotOptions) -> Result<PlotCollector, PlotError> {
-        let from_s = opts.from_s.unwrap_or(0.0);
-        if !from_s.is_finite() || from_s < 0.0 {
-            return Err(PlotError::Window(format!(
-                "--from {from_s} must be ≥ 0 seconds"
-            )));
-        }
-        if let Some(t) = opts.to_s {
-            if !t.is_finite() || t <= from_s {
-                return Err(PlotError::Window(format!(
-                    "--to {t} must be later than --from {from_s}"
-                )));
-            }
-        }
-        let rate = info.rate;
-        let hz = rate.hz();
+        let hz = info.rate.hz();
         // The decoder's own envelope settings (decode.rs, `Decoder::new`).
         let decim = WideEnvelope::decimation_for(hz, opts.decode.max_envelope_rate_hz);
         let smooth = (opts.decode.smooth_us * 1e-6 * hz / decim as f64).round() as usize;
-        let env = WideEnvelope::with_smoothing(decim, smooth);
-        let cfg = EdgeConfig::for_rate(hz / decim as f64);
+        let front = PlotFront::Wide {
+            base: WideEnvelope::with_smoothing(decim, smooth),
+            light: LightEnvelope::new(decim, smooth),
+        };
+        let decoder = Decoder::new(info.clone(), &opts.decode);
+        PlotCollector::with_front(info, opts, front, decoder)
+    }
+
+    /// A collector for one carrier's channel of an IQ capture: the envelope view and the
+    /// decode both read the channel `plan` describes, with the receiver's DC offset `dc`
+    /// removed first (as [`Decoder::for_channel`] does). Checks the window.
+    pub fn for_channel(
+        info: CaptureInfo,
+        opts: &PlotOptions,
+        plan: ChannelPlan,
+        dc: Complex32,
+    ) -> Result<PlotCollector, PlotError> {
+        // The decoder's own channel settings (decode.rs, `Decoder::for_channel`).
+        let smooth = (opts.decode.smooth_us * 1e-6 * plan.out_rate_hz).round() as usize;
+        let front = PlotFront::Channel {
+            ch: Box::new(ChannelEnvelope::new(plan.clone(), smooth)?.with_dc(dc)),
+            out: EnvelopeBlock::default(),
+        };
+        let decoder = Decoder::for_channel(info.clone(), &opts.decode, plan, dc)?;
+        PlotCollector::with_front(info, opts, front, decoder)
+    }
+
+    fn with_front(
+        info: CaptureInfo,
+        opts: &PlotOptions,
+        front: PlotFront,
+        decoder: Decoder,
+    ) -> Result<PlotCollector, PlotError> {
+        let from_s = check_window(opts)?;
+        let rate = info.rate;
+        let cfg = EdgeConfig::for_rate(rate.hz() / front.decim());
         let on_sigma = cfg.on_sigma;
-        let env_index = |s: f64| env.index_of(rate.samples_from_s(s));
+        let env_index = |s: f64| front.index_of(rate.samples_from_s(s));
         let start = env_index(from_s).ceil().max(0.0) as u64;
         let known_end_s = match (opts.to_s, info.declared_samples) {
             (Some(t), Some(n)) => Some(t.min(rate.to_s(n as f64))),
@@ -261,9 +350,8 @@ impl PlotCollector {
         };
         let end = known_end_s.map(|t| (env_index(t).floor().max(0.0) as u64 + 1).max(start + 1));
         Ok(PlotCollector {
-            decoder: Decoder::new(info, &opts.decode),
-            env,
-            light: LightEnvelope::new(decim, smooth),
+            decoder,
+            front,
             edges: EdgeDetector::new(cfg),
             on_sigma,
             block: Vec::new(),
@@ -279,7 +367,7 @@ impl PlotCollector {
     }
 
     fn seconds(&self, env_pos: f64) -> f64 {
-        self.rate.to_s(self.env.position_of(env_pos))
+        self.rate.to_s(self.front.position_of(env_pos))
     }
 
     /// Feeds one block of samples.
@@ -288,7 +376,7 @@ impl PlotCollector {
         self.decoder.push(block);
         let mut env = std::mem::take(&mut self.block);
         env.clear();
-        self.light.process(block, &mut env);
+        self.front.process(block, &mut env);
         for chunk in env.chunks(LEVEL_STEP) {
             self.edges.process(chunk, &[], &mut self.found);
             let (floor, sigma) = self.edges.floor_and_noise();
@@ -306,9 +394,7 @@ impl PlotCollector {
         if self.found.is_empty() {
             return;
         }
-        let tol = self
-            .rate
-            .to_s(self.trace.width as f64 * self.env.decim() as f64);
+        let tol = self.rate.to_s(self.trace.width as f64 * self.front.decim());
         let to = self.to_s.unwrap_or(f64::INFINITY);
         let found = std::mem::take(&mut self.found);
         for m in &found {
@@ -348,8 +434,8 @@ impl PlotCollector {
             .enumerate()
             .map(|(i, c)| {
                 let k0 = start + i as f64 * w;
-                let t0 = self.rate.to_s(self.env.position_of(k0 - 0.5));
-                let t1 = self.rate.to_s(self.env.position_of(k0 + w - 0.5));
+                let t0 = self.rate.to_s(self.front.position_of(k0 - 0.5));
+                let t1 = self.rate.to_s(self.front.position_of(k0 + w - 0.5));
                 let n = c.levels.max(1) as f64;
                 EnvelopeColumn {
                     t0_s: t0.max(0.0),
@@ -379,6 +465,7 @@ impl PlotCollector {
             marks_s: self.spans,
             on_sigma: self.on_sigma,
             spectrum: None,
+            channel: None,
         })
     }
 }

@@ -5,8 +5,12 @@
 //! 1. **Envelope over time**: the envelope reduced to a min/max band per pixel column, the
 //!    edge stage's idle floor and its `floor + 4σ` detection line, every detected mark shaded,
 //!    a box around each decoded frame with its key above it and its bits written under it.
-//! 2. **Spectrum** (when a [`SpectrumView`] is given): average and peak-hold level across the
-//!    capture's band, carriers marked.
+//!    For an IQ capture this is either the whole band (the default) or one carrier's channel
+//!    ([`ChannelChoice`]): mixed to 0 Hz, low-passed and decimated exactly as the per-carrier
+//!    decode does it, with the frames and bits of that channel's own decoder.
+//! 2. **Spectrum** (when a [`SpectrumView`] is given, and always when a channel was chosen):
+//!    average and peak-hold level across the capture's band, carriers marked, the chosen
+//!    channel's passband shaded.
 //! 3. **Width histograms**: mark and space widths of the decoded frames on a logarithmic
 //!    µs axis, with their clusters and each code's inferred unit.
 //!
@@ -17,21 +21,35 @@
 //! envelope sample wide and are merged in pairs whenever there are twice too many.
 //!
 //! ```no_run
-//! use ooksift::plot::{collect_path, write_svg, PlotOptions};
+//! use ooksift::plot::{collect_path, write_svg, ChannelChoice, PlotOptions};
 //! let data = collect_path("captures/harrowgate-gate.cu8", &PlotOptions::default()).unwrap();
 //! write_svg(&data, "gate.svg".as_ref(), false).unwrap();
+//!
+//! // Only the transmitter near +25 kHz: its channel's envelope and its decode.
+//! let opts = PlotOptions {
+//!     channel: ChannelChoice::Nearest(25e3),
+//!     ..PlotOptions::default()
+//! };
+//! let data = collect_path("captures/harrowgate-gate.cu8", &opts).unwrap();
+//! write_svg(&data, "gate-channel.svg".as_ref(), false).unwrap();
 //! ```
+//!
+//! A chosen channel costs one more pass over the file (the spectrum survey that finds the
+//! carriers, as `decode` does for IQ files), so it needs a file, not standard input.
 //!
 //! [`Decoder`]: crate::decode::Decoder
 
 mod axis;
+mod channel;
 mod collect;
 mod svg;
 
+pub use channel::{pick_carrier, spectrum_of};
 pub use collect::PlotCollector;
-pub use svg::{render_svg, SVG_WIDTH_PX};
+pub use svg::{render_svg, view_source, SVG_WIDTH_PX};
 
-use crate::decode::DecodeOptions;
+use crate::decode::{DecodeError, DecodeOptions};
+use crate::front::FrontError;
 use crate::output::OutputError;
 use crate::report::DecodeReport;
 use crate::source::{self, SampleSource, SourceError};
@@ -50,6 +68,49 @@ pub enum PlotError {
     /// The SVG could not be written.
     #[error(transparent)]
     Output(#[from] OutputError),
+    /// The spectrum survey failed.
+    #[error(transparent)]
+    Decode(#[from] DecodeError),
+    /// The chosen carrier's channel could not be built.
+    #[error("channel: {0}")]
+    Front(#[from] FrontError),
+    /// No carrier fits the choice, or the capture has none to choose from.
+    #[error("{0}")]
+    Carrier(String),
+}
+
+/// Which part of the band the envelope view shows.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+#[non_exhaustive]
+pub enum ChannelChoice {
+    /// The whole band, in one pass (as recorded, for envelope captures). IQ captures show every
+    /// transmitter at once and are decoded from the whole band.
+    #[default]
+    WholeBand,
+    /// The bursty carrier nearest this offset from the centre frequency, Hz. The offset must
+    /// fall inside that carrier's channel passband, or within [`NEAREST_TOLERANCE_HZ`] of the
+    /// carrier when the passband is narrower.
+    Nearest(f64),
+    /// The bursty carrier with the highest peak level in the survey.
+    Strongest,
+}
+
+/// Least distance accepted between a requested offset and the carrier it picks.
+pub const NEAREST_TOLERANCE_HZ: f64 = 5e3;
+
+/// The carrier channel a plot shows.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ShownChannel {
+    /// Offset the survey measured for the carrier, Hz from the centre.
+    pub carrier_offset_hz: f64,
+    /// The carrier's peak level in the survey, dB.
+    pub peak_db: f32,
+    /// Passband width of the channel (the decode's own plan), Hz.
+    pub bandwidth_hz: f64,
+    /// Envelope rate of the channel before smoothing, Hz.
+    pub out_rate_hz: f64,
+    /// What was asked for: the offset given, or `None` for the strongest carrier.
+    pub requested_hz: Option<f64>,
 }
 
 /// What to plot.
@@ -64,6 +125,8 @@ pub struct PlotOptions {
     /// Envelope columns kept across the window (default: one per pixel of the SVG's plot
     /// area, [`svg::PLOT_WIDTH_PX`]).
     pub columns: usize,
+    /// Whole band, or one carrier's channel (IQ files only).
+    pub channel: ChannelChoice,
 }
 
 impl Default for PlotOptions {
@@ -73,6 +136,7 @@ impl Default for PlotOptions {
             from_s: None,
             to_s: None,
             columns: svg::PLOT_WIDTH_PX as usize,
+            channel: ChannelChoice::WholeBand,
         }
     }
 }
@@ -150,9 +214,12 @@ pub struct PlotData {
     pub on_sigma: f32,
     /// Spectrum to draw (none for envelope captures, or until a survey provides it).
     pub spectrum: Option<SpectrumView>,
+    /// The carrier channel shown (`None`: the whole band, or a recorded envelope).
+    pub channel: Option<ShownChannel>,
 }
 
-/// Collects the plot data of an open capture.
+/// Collects the plot data of an open capture, from the whole band (a chosen channel needs
+/// [`collect_path`], which reads the file twice).
 pub fn collect_source(
     src: &mut dyn SampleSource,
     opts: &PlotOptions,
@@ -165,9 +232,17 @@ pub fn collect_source(
 }
 
 /// Opens the capture at `path` (`-` for standard input) and collects its plot data.
+///
+/// With a carrier chosen in `opts.channel`, an IQ file is read twice: the spectrum survey of
+/// `decode` finds the bursty carriers, [`pick_carrier`] takes one, and the second pass runs
+/// that carrier's channel (the plan `decode` would give it) into the envelope view and into a
+/// channel decoder. Envelope captures and standard input then give [`PlotError::Carrier`].
 pub fn collect_path(path: &str, opts: &PlotOptions) -> Result<PlotData, PlotError> {
     let mut src = source::open(path, &opts.decode.open)?;
-    collect_source(src.as_mut(), opts)
+    if opts.channel == ChannelChoice::WholeBand {
+        return collect_source(src.as_mut(), opts);
+    }
+    channel::collect_channel(path, src, opts)
 }
 
 /// Renders `data` and writes it to `out` atomically; an existing `out` is kept unless `force`.

@@ -1,9 +1,11 @@
 //! The SVG writer: plain text, one `<g>` per view, classes that name what each element is
 //! (`frame`, `bit`, `mark`, `envelope`, `floor`, `threshold`, `bar`, `cluster`, `unit`,
-//! `carrier`, `average`, `peak`), so tests and style sheets can find them.
+//! `carrier`, `average`, `peak`, `view-source`, `channel-band`), so tests and style sheets can
+//! find them.
 
 use super::axis::{self, Scale};
-use super::{PlotData, SpectrumView};
+use super::channel::khz;
+use super::{PlotData, ShownChannel, SpectrumView};
 use crate::report::{CodeReport, FrameTimeline};
 use crate::timing;
 use std::fmt::Write;
@@ -262,7 +264,7 @@ pub fn render_svg(d: &PlotData) -> String {
     header(&mut svg, d, &name);
     envelope_view(&mut svg, d);
     if let Some(s) = d.spectrum.as_ref().filter(|_| has_spectrum) {
-        spectrum_view(&mut svg, s, 470.0);
+        spectrum_view(&mut svg, s, d.channel.as_ref(), 470.0);
     }
     histogram_view(&mut svg, d, hist_top);
     let col_s = d.columns.first().map_or(0.0, |c| c.t1_s - c.t0_s);
@@ -311,6 +313,28 @@ fn header(svg: &mut Svg, d: &PlotData, name: &str) {
     svg.text(LEFT, 48.0, r##"font-size="12" fill="#555""##, &sub);
 }
 
+/// What the envelope view reads: a carrier's channel, the whole band, or a recorded envelope.
+pub fn view_source(d: &PlotData) -> String {
+    match &d.channel {
+        Some(c) => {
+            let asked = match c.requested_hz {
+                Some(f) => format!("asked for {}", khz(f)),
+                None => "the strongest".to_string(),
+            };
+            format!(
+                "channel of the carrier at {} ({asked}), {} wide",
+                khz(c.carrier_offset_hz),
+                khz(c.bandwidth_hz).trim_start_matches('+')
+            )
+        }
+        // SigMF datatype names start with `c` for complex samples.
+        None if d.report.capture.datatype.starts_with('c') => {
+            "whole band, every carrier at once".to_string()
+        }
+        None => "as recorded".to_string(),
+    }
+}
+
 fn envelope_view(svg: &mut Svg, d: &PlotData) {
     let top = 84.0;
     let bottom = 384.0;
@@ -320,6 +344,12 @@ fn envelope_view(svg: &mut Svg, d: &PlotData) {
         74.0,
         r##"font-size="14" font-weight="bold" fill="#222""##,
         "Envelope over time",
+    );
+    svg.text(
+        LEFT + 172.0,
+        74.0,
+        r##"class="view-source" font-size="12" fill="#1f4e79""##,
+        &view_source(d),
     );
     let mut x = RIGHT - 650.0;
     x = legend(
@@ -532,7 +562,7 @@ fn frame_bits(
     }
 }
 
-fn spectrum_view(svg: &mut Svg, s: &SpectrumView, top0: f64) {
+fn spectrum_view(svg: &mut Svg, s: &SpectrumView, shown: Option<&ShownChannel>, top0: f64) {
     let top = top0 + 24.0;
     let bottom = top + 200.0;
     svg.raw(r#"<g class="view spectrum-view">"#);
@@ -542,7 +572,16 @@ fn spectrum_view(svg: &mut Svg, s: &SpectrumView, top0: f64) {
         r##"font-size="14" font-weight="bold" fill="#222""##,
         "Spectrum",
     );
-    let mut lx = RIGHT - 360.0;
+    let mut lx = RIGHT - if shown.is_some() { 530.0 } else { 360.0 };
+    if shown.is_some() {
+        lx = legend(
+            svg,
+            lx,
+            top0 + 14.0,
+            r##"<rect width="16" height="8" fill="#1f4e79" fill-opacity="0.18"/>"##,
+            "channel shown above",
+        );
+    }
     lx = legend(
         svg,
         lx,
@@ -628,6 +667,20 @@ fn spectrum_view(svg: &mut Svg, s: &SpectrumView, top0: f64) {
         .enumerate()
         .filter(|(_, p)| p.is_finite())
         .map(|(i, p)| (LEFT + i as f64 + 0.5, ys.clamped(*p)));
+    // The chosen channel's passband, behind the traces.
+    if let Some(c) = shown {
+        let x0 = xs.clamped(base + c.carrier_offset_hz - c.bandwidth_hz / 2.0);
+        let x1 = xs
+            .clamped(base + c.carrier_offset_hz + c.bandwidth_hz / 2.0)
+            .max(x0 + 2.0);
+        svg.rect(
+            x0,
+            top,
+            x1 - x0,
+            bottom - top,
+            r##"class="channel-band" fill="#1f4e79" fill-opacity="0.18""##,
+        );
+    }
     svg.raw(&format!(
         r##"<path class="peak" d="{}" fill="none" stroke="#ff7f0e" stroke-width="1.2"/>"##,
         path_of(pts_peak)
@@ -636,17 +689,34 @@ fn spectrum_view(svg: &mut Svg, s: &SpectrumView, top0: f64) {
         r##"<path class="average" d="{}" fill="none" stroke="#1f77b4" stroke-width="1.6"/>"##,
         path_of(pts_avg)
     ));
-    for c in &s.carriers {
+    // The marker of the shown carrier (the nearest one, should offsets be rounded).
+    let chosen = shown.and_then(|c| {
+        s.carriers
+            .iter()
+            .enumerate()
+            .min_by(|a, b| {
+                let d = |m: &super::CarrierMarker| (m.offset_hz - c.carrier_offset_hz).abs();
+                d(a.1).total_cmp(&d(b.1))
+            })
+            .filter(|(_, m)| (m.offset_hz - c.carrier_offset_hz).abs() <= 1.0)
+            .map(|(i, _)| i)
+    });
+    for (i, c) in s.carriers.iter().enumerate() {
         let x = xs.at(base + c.offset_hz);
         if !(LEFT..=RIGHT).contains(&x) {
             continue;
         }
+        let is_chosen = chosen == Some(i);
         svg.line(
             x,
             top,
             x,
             bottom,
-            r##"class="carrier" stroke="#d62728" stroke-width="1.5" stroke-dasharray="4 3""##,
+            if is_chosen {
+                r##"class="carrier chosen" stroke="#d62728" stroke-width="2.5""##
+            } else {
+                r##"class="carrier" stroke="#d62728" stroke-width="1.5" stroke-dasharray="4 3""##
+            },
         );
         if let Some(l) = c.level_db.filter(|l| l.is_finite()) {
             let _ = writeln!(
@@ -658,14 +728,25 @@ fn spectrum_view(svg: &mut Svg, s: &SpectrumView, top0: f64) {
         }
         let anchor = if x > RIGHT - 120.0 { "end" } else { "start" };
         let dx = if anchor == "end" { -4.0 } else { 4.0 };
+        let weight = if is_chosen { "bold" } else { "normal" };
         svg.text(
             x + dx,
             top + 13.0,
             &format!(
-                r##"class="carrier-label" text-anchor="{anchor}" font-size="11" fill="#d62728""##
+                r##"class="carrier-label" text-anchor="{anchor}" font-size="11" font-weight="{weight}" fill="#d62728""##
             ),
             &c.label,
         );
+        if is_chosen {
+            svg.text(
+                x + dx,
+                top + 26.0,
+                &format!(
+                    r##"class="chosen-label" text-anchor="{anchor}" font-size="11" fill="#1f4e79""##
+                ),
+                "shown above",
+            );
+        }
     }
     frame_and_titles(svg, &a);
     svg.raw("</g>");

@@ -108,7 +108,11 @@ impl SampleSource for RawSource {
             return Ok(None);
         }
         self.comps.clear();
-        dt.decode_components(&self.bytes[..whole], &mut self.comps);
+        self.iq.clear();
+        let direct = dt.decode_iq_fast(&self.bytes[..whole], &mut self.iq);
+        if !direct {
+            dt.decode_components(&self.bytes[..whole], &mut self.comps);
+        }
         self.bytes.drain(..whole);
         if self.done && !self.bytes.is_empty() {
             // The stream ended inside a sample; report it after this block's last whole sample
@@ -130,8 +134,9 @@ impl SampleSource for RawSource {
         }
         let n = whole / sb;
         self.position += n as u64;
-        if dt.complex {
-            self.iq.clear();
+        if direct {
+            Ok(Some(Samples::Iq(&self.iq)))
+        } else if dt.complex {
             self.iq.extend(
                 self.comps
                     .chunks_exact(2)

@@ -1,0 +1,867 @@
+//! Trellis re-slicing: the most likely sequence of the line code's symbols in a burst's
+//! envelope, found by dynamic programming over a fine time grid.
+//!
+//! The edge stage decides mark or space sample by sample (with hysteresis); near the noise
+//! floor a dip inside a mark or a noise peak inside a space breaks the structure of the frame,
+//! and one broken mark costs the whole frame. Once the first pass has inferred the timing plan
+//! of a burst — its line code, unit, header, closing mark and gap — that plan says which
+//! mark/space patterns can occur at all: a PWM bit is a short mark and a long space or a long
+//! mark and a short space, a PPM bit is a unit mark and a short or long space. This stage
+//! searches, over every way of laying those symbols end to end (each element free to stretch
+//! or shrink by a little, so drift and jitter are followed), for the sequence whose marks hold
+//! the most evidence of a carrier:
+//!
+//! ```text
+//! score(sequence) = Σ over its marks Σ over their samples  llr(envelope sample)
+//! ```
+//!
+//! where `llr` is the log-likelihood ratio of "carrier on" against "carrier off" for one
+//! envelope sample. Spaces add nothing (the all-space reading is the reference), so the best
+//! sequence is the maximum-likelihood reading of the burst under the plan; summing the samples
+//! of a whole mark is the integrate-and-dump matched filter, and the symbol grammar compares
+//! exactly the units in which two symbols differ. Noise alone gives marks a negative expected
+//! score, so the search lays no frame where there is no carrier.
+//!
+//! The search runs on bins of about an eighth of a unit (prefix sums make every mark's score
+//! O(1)); its cost is a few hundred operations per unit of burst, independent of the sample
+//! rate.
+//!
+//! ```
+//! use ooksift::trellis::{segment, Plan, Symbol};
+//! // 4 PWM bits (1 = 3 units on + 1 off, 0 = 1 on + 3 off), closing mark, 10-unit gap, twice;
+//! // 8 samples per unit, envelope 1.0 on and 0.0 off: llr = x − 0.5.
+//! let mut env = vec![0.0f32; 40];
+//! for _ in 0..2 {
+//!     for &b in &[true, false, true, true] {
+//!         let (on, off) = if b { (24, 8) } else { (8, 24) };
+//!         env.extend(std::iter::repeat(1.0).take(on));
+//!         env.extend(std::iter::repeat(0.0).take(off));
+//!     }
+//!     env.extend(std::iter::repeat(1.0).take(8));
+//!     env.extend(std::iter::repeat(0.0).take(80));
+//! }
+//! let llr: Vec<f32> = env.iter().map(|x| x - 0.5).collect();
+//! let plan = Plan {
+//!     unit: 8.0,
+//!     symbols: vec![Symbol { mark: 1.0, space: 3.0, bit: false }, Symbol { mark: 3.0, space: 1.0, bit: true }],
+//!     header: None,
+//!     closing: Some(1.0),
+//!     gap_min: 6.0,
+//! };
+//! let reading = segment(&llr, &plan);
+//! assert_eq!(reading.marks.len(), 10);
+//! assert_eq!(reading.marks[0], (40.0, 64.0));
+//! assert_eq!(reading.frames.len(), 2);
+//! assert_eq!(reading.frames[1].bits, [true, false, true, true]);
+//! assert_eq!((reading.frames[1].first_mark, reading.frames[1].last_mark), (5, 9));
+//! ```
+
+/// One data symbol of a plan: a mark and the space after it, in units, and the bit it carries.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Symbol {
+    /// Mark length in units.
+    pub mark: f64,
+    /// Space length in units (inside a frame).
+    pub space: f64,
+    /// The bit.
+    pub bit: bool,
+}
+
+/// The timing plan of a burst, in envelope samples and units.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Plan {
+    /// The unit in envelope samples.
+    pub unit: f64,
+    /// Data symbols.
+    pub symbols: Vec<Symbol>,
+    /// Header mark and space in units, when frames open with one.
+    pub header: Option<(f64, f64)>,
+    /// Closing mark in units, when frames end with one that carries no bit.
+    pub closing: Option<f64>,
+    /// Shortest space between frames, in units.
+    pub gap_min: f64,
+}
+
+/// Grid steps per unit (fewer for long bursts, see [`MAX_CELLS`]).
+const STEPS_PER_UNIT: f64 = 8.0;
+/// Fewest grid steps per unit the search accepts.
+const MIN_STEPS_PER_UNIT: f64 = 3.0;
+/// Largest search table (states × grid positions); a burst needing more is left to the
+/// edge-based readings. 3 M cells are 36 MB.
+pub const MAX_CELLS: usize = 3 << 20;
+
+/// Back-pointer: which state and position a state was reached from.
+#[derive(Debug, Clone, Copy)]
+struct Back {
+    state: u16,
+    pos: u32,
+}
+
+const NONE: Back = Back {
+    state: u16::MAX,
+    pos: u32::MAX,
+};
+
+/// State numbering of the search: frame start (A), end of header mark (H), end of closing
+/// mark (C), symbol start after k bits (B_k), end of symbol s's mark as bit k (E_{s,k}).
+struct States {
+    /// Bits per frame (exact), or the fewest bits when `open`.
+    k: usize,
+    /// Frames may hold more than `k` bits.
+    open: bool,
+    symbols: usize,
+}
+
+impl States {
+    const A: usize = 0;
+    const H: usize = 1;
+    const C: usize = 2;
+    fn b(&self, k: usize) -> usize {
+        3 + k
+    }
+    fn e(&self, s: usize, k: usize) -> usize {
+        3 + self.k + 1 + s * self.k + (k - 1)
+    }
+    fn count(&self) -> usize {
+        3 + self.k + 1 + self.symbols * self.k
+    }
+    /// Bit count after one more symbol from B_k, if allowed.
+    fn next(&self, k: usize) -> Option<usize> {
+        if k < self.k {
+            Some(k + 1)
+        } else if self.open {
+            Some(self.k)
+        } else {
+            None
+        }
+    }
+}
+
+/// The most likely reading of `llr` (one log-likelihood ratio per envelope sample) under
+/// `plan`: frames of at least [`crate::frames::MIN_BITS`] bits. Empty when no sequence scores
+/// above the all-space reading or the burst is too long to search.
+pub fn segment(llr: &[f32], plan: &Plan) -> Reading {
+    segment_frames(llr, plan, None)
+}
+
+/// [`segment`] with frames of exactly `bits` data bits when `bits` is given.
+pub fn segment_frames(llr: &[f32], plan: &Plan, bits: Option<usize>) -> Reading {
+    if !(plan.unit.is_finite() && plan.unit >= 1.0) || plan.symbols.is_empty() || llr.is_empty() {
+        return Reading::default();
+    }
+    let st = States {
+        k: bits.unwrap_or(crate::frames::MIN_BITS).max(1),
+        open: bits.is_none(),
+        symbols: plan.symbols.len(),
+    };
+    let ns = st.count();
+    if ns >= u16::MAX as usize {
+        return Reading::default();
+    }
+    // Grid of `bin` samples: about an eighth of a unit (coarser for long bursts), at least one
+    // sample.
+    let mut steps = STEPS_PER_UNIT;
+    let fits = |steps: f64| {
+        let bin = (plan.unit / steps).floor().max(1.0) as usize;
+        (llr.len().div_ceil(bin) + 1).saturating_mul(ns) <= MAX_CELLS
+    };
+    while !fits(steps) && steps > MIN_STEPS_PER_UNIT {
+        steps -= 1.0;
+    }
+    if !fits(steps) {
+        return Reading::default();
+    }
+    let bin = (plan.unit / steps).floor().max(1.0) as usize;
+    let n = llr.len().div_ceil(bin);
+    let mut prefix = Vec::with_capacity(n + 1);
+    prefix.push(0.0f64);
+    for chunk in llr.chunks(bin) {
+        let s: f64 = chunk.iter().map(|&v| v as f64).sum();
+        let last = prefix[prefix.len() - 1];
+        prefix.push(last + s);
+    }
+    let upb = plan.unit / bin as f64; // grid steps per unit
+                                      // An element of `u` units spans round(u·upb) ± slack steps: a tenth of a unit, plus 3 %
+                                      // of its length for drift, at least one step.
+    let span = |u: f64| -> (usize, usize) {
+        let c = (u * upb).round().max(1.0);
+        let slack = (upb * (0.1 + 0.03 * u)).round().max(1.0);
+        (((c - slack).max(1.0)) as usize, (c + slack) as usize)
+    };
+    let gap_min = ((plan.gap_min * upb).round().max(1.0)) as usize;
+
+    let neg = f32::NEG_INFINITY;
+    let mut score = vec![neg; ns * (n + 1)];
+    let mut back = vec![NONE; ns * (n + 1)];
+    let idx = |state: usize, pos: usize| pos * ns + state;
+    let mark_score = |a: usize, b: usize| (prefix[b] - prefix[a]) as f32;
+    let relax = |score: &mut [f32], back: &mut [Back], to: usize, v: f32, from: Back| {
+        if v > score[to] {
+            score[to] = v;
+            back[to] = from;
+        }
+    };
+    let at = |state: usize, pos: usize| Back {
+        state: state as u16,
+        pos: pos as u32,
+    };
+
+    // States after which a frame may end: the closing mark's end when the plan has one,
+    // otherwise the end of a last data mark (its space runs into the gap).
+    let ends: Vec<usize> = if plan.closing.is_some() {
+        vec![States::C]
+    } else {
+        (0..st.symbols).map(|s| st.e(s, st.k)).collect()
+    };
+    // Best frame end at or before `t - gap_min` (running maximum), and the best complete
+    // reading: a frame end followed by space to the end of the burst.
+    let mut best_end = (neg, NONE);
+    let mut best_final = (0.0f32, NONE);
+    let closing = plan.closing.map(span);
+    let header = plan.header.map(|(m, s)| (span(m), span(s)));
+    let syms: Vec<((usize, usize), (usize, usize))> = plan
+        .symbols
+        .iter()
+        .map(|s| (span(s.mark), span(s.space)))
+        .collect();
+
+    for t in 0..=n {
+        if t >= gap_min {
+            let e = t - gap_min;
+            for &s in &ends {
+                let v = score[idx(s, e)];
+                if v > best_end.0 {
+                    best_end = (v, at(s, e));
+                }
+            }
+        }
+        // A: a frame may start anywhere after silence, or after a gap.
+        let (a, from) = if best_end.0 > 0.0 {
+            best_end
+        } else {
+            (0.0, NONE)
+        };
+        score[idx(States::A, t)] = a;
+        back[idx(States::A, t)] = from;
+        match header {
+            Some(((m0, m1), _)) => {
+                for len in m0..=m1.min(n - t) {
+                    let v = a + mark_score(t, t + len);
+                    relax(
+                        &mut score,
+                        &mut back,
+                        idx(States::H, t + len),
+                        v,
+                        at(States::A, t),
+                    );
+                }
+            }
+            None => relax(&mut score, &mut back, idx(st.b(0), t), a, at(States::A, t)),
+        }
+        if let Some((_, (s0, s1))) = header {
+            let h = score[idx(States::H, t)];
+            if h > neg {
+                for len in s0..=s1.min(n - t) {
+                    relax(
+                        &mut score,
+                        &mut back,
+                        idx(st.b(0), t + len),
+                        h,
+                        at(States::H, t),
+                    );
+                }
+            }
+        }
+        // E_{s,k}: the symbol's space leads to the next symbol.
+        for (s, &(_, (s0, s1))) in syms.iter().enumerate() {
+            for k in 1..=st.k {
+                let e = score[idx(st.e(s, k), t)];
+                if e == neg {
+                    continue;
+                }
+                for len in s0..=s1.min(n - t) {
+                    relax(
+                        &mut score,
+                        &mut back,
+                        idx(st.b(k), t + len),
+                        e,
+                        at(st.e(s, k), t),
+                    );
+                }
+            }
+        }
+        // B_k: a data symbol's mark, or (after enough bits) the closing mark.
+        for k in 0..=st.k {
+            let b = score[idx(st.b(k), t)];
+            if b == neg {
+                continue;
+            }
+            if let Some(k1) = st.next(k) {
+                for (s, &((m0, m1), _)) in syms.iter().enumerate() {
+                    for len in m0..=m1.min(n - t) {
+                        let v = b + mark_score(t, t + len);
+                        relax(
+                            &mut score,
+                            &mut back,
+                            idx(st.e(s, k1), t + len),
+                            v,
+                            at(st.b(k), t),
+                        );
+                    }
+                }
+            }
+            if k == st.k {
+                if let Some((m0, m1)) = closing {
+                    for len in m0..=m1.min(n - t) {
+                        let v = b + mark_score(t, t + len);
+                        relax(
+                            &mut score,
+                            &mut back,
+                            idx(States::C, t + len),
+                            v,
+                            at(st.b(k), t),
+                        );
+                    }
+                }
+            }
+        }
+        for &s in &ends {
+            let v = score[idx(s, t)];
+            if v > best_final.0 {
+                best_final = (v, at(s, t));
+            }
+        }
+    }
+
+    // Walk back, collecting marks (every transition into H, C or an E state ends one) and
+    // frames (a transition into A from a frame end closes one).
+    let first_e = st.e(0, 1);
+    let mut marks = Vec::new();
+    let mut frames: Vec<FrameSpan> = Vec::new();
+    let mut open = FrameSpan::default();
+    let mut in_frame = false;
+    let mut cur = best_final.1;
+    let mut guard = 0usize;
+    while cur.state != u16::MAX && guard <= ns * (n + 1) {
+        guard += 1;
+        let (s, pos) = (cur.state as usize, cur.pos as usize);
+        let prev = back[idx(s, pos)];
+        if !in_frame && s != States::A {
+            in_frame = true;
+            open = FrameSpan {
+                last_mark: marks.len(),
+                ..FrameSpan::default()
+            };
+        }
+        if s == States::A && in_frame {
+            open.first_mark = marks.len().saturating_sub(1);
+            frames.push(std::mem::take(&mut open));
+            in_frame = false;
+        }
+        if prev.state == u16::MAX {
+            break;
+        }
+        if s == States::H || s == States::C || s >= first_e {
+            marks.push((
+                (prev.pos as usize * bin) as f64,
+                ((pos * bin).min(llr.len())) as f64,
+            ));
+        }
+        if s >= first_e {
+            open.bits.push(plan.symbols[(s - first_e) / st.k].bit);
+        }
+        cur = prev;
+    }
+    if in_frame && !marks.is_empty() {
+        open.first_mark = marks.len() - 1;
+        frames.push(open);
+    }
+    marks.reverse();
+    let last = marks.len().saturating_sub(1);
+    let mut frames: Vec<FrameSpan> = frames
+        .into_iter()
+        .rev()
+        .map(|mut f| {
+            f.bits.reverse();
+            FrameSpan {
+                first_mark: last - f.first_mark,
+                last_mark: last - f.last_mark,
+                bits: f.bits,
+            }
+        })
+        .collect();
+    frames.retain(|f| f.first_mark <= f.last_mark);
+    Reading {
+        score: best_final.0 as f64,
+        marks,
+        frames,
+    }
+}
+
+/// `plan` with its unit replaced by the one, within `±span` (a fraction) of it to `step`
+/// (coarse steps of `2·step`, then refined), whose free search ([`segment`]) scores best, and
+/// that score: a unit measured from noisy marks is
+/// off by several percent, and every frame's length multiplies the error.
+pub fn fit_unit(llr: &[f32], plan: &Plan, span: f64, step: f64) -> (Plan, f64) {
+    let score_at = |unit: f64| {
+        segment(
+            llr,
+            &Plan {
+                unit,
+                ..plan.clone()
+            },
+        )
+        .score
+    };
+    let mut best = (score_at(plan.unit), plan.unit);
+    if step > 0.0 && span > 0.0 {
+        // Coarse steps of twice `step`, then the two neighbours of the best at `step`.
+        let k = (span / (2.0 * step)).round() as i32;
+        for i in (-k..=k).filter(|&i| i != 0) {
+            let unit = plan.unit * (1.0 + 2.0 * step * i as f64);
+            let sc = score_at(unit);
+            if sc > best.0 {
+                best = (sc, unit);
+            }
+        }
+        let centre = best.1;
+        for unit in [centre * (1.0 - step), centre * (1.0 + step)] {
+            let sc = score_at(unit);
+            if sc > best.0 {
+                best = (sc, unit);
+            }
+        }
+    }
+    (
+        Plan {
+            unit: best.1,
+            ..plan.clone()
+        },
+        best.0,
+    )
+}
+
+/// One frame of a [`Reading`].
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct FrameSpan {
+    /// Index of its first mark (header included) in [`Reading::marks`].
+    pub first_mark: usize,
+    /// Index of its last mark (closing mark included).
+    pub last_mark: usize,
+    /// Its data bits.
+    pub bits: Vec<bool>,
+}
+
+/// The best symbol sequence of a burst.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Reading {
+    /// Its log-likelihood ratio against the all-space reading (the sum of the llr under its
+    /// marks); 0 when empty.
+    pub score: f64,
+    /// Its marks as (rise, fall) envelope-sample positions, in time order.
+    pub marks: Vec<(f64, f64)>,
+    /// Its frames, in time order.
+    pub frames: Vec<FrameSpan>,
+}
+
+impl Reading {
+    /// How well the reading lies on `llr`: the mean llr under its marks and minus the mean
+    /// under the spaces inside its frames, the smaller of the two, as a fraction of `half`
+    /// (half the difference between the carrier and idle levels the llr was made from). About
+    /// 1 when every mark and space lies where the carrier does; a plan that does not match the
+    /// code straddles marks and spaces and fits neither.
+    pub fn fit(&self, llr: &[f32], half: f64) -> f64 {
+        let sum = |a: usize, b: usize| -> (f64, usize) {
+            let (a, b) = (a.min(llr.len()), b.min(llr.len()));
+            let b = b.max(a);
+            (llr[a..b].iter().map(|&v| v as f64).sum(), b - a)
+        };
+        let (mut on, mut n_on, mut off, mut n_off) = (0.0f64, 0usize, 0.0f64, 0usize);
+        for f in &self.frames {
+            for k in f.first_mark..=f.last_mark.min(self.marks.len().saturating_sub(1)) {
+                let (x, y) = (self.marks[k].0 as usize, self.marks[k].1 as usize);
+                let (s, n) = sum(x, y);
+                on += s;
+                n_on += n;
+                if k < f.last_mark {
+                    if let Some(next) = self.marks.get(k + 1) {
+                        let (s, n) = sum(y, next.0 as usize);
+                        off += s;
+                        n_off += n;
+                    }
+                }
+            }
+        }
+        if half <= 0.0 || n_on == 0 {
+            return 0.0;
+        }
+        (on / n_on as f64).min(-off / n_off.max(1) as f64) / half
+    }
+
+    /// The most common frame length in bits (ties: the longer); `None` without frames.
+    pub fn modal_bits(&self) -> Option<usize> {
+        let mut counts: Vec<(usize, usize)> = Vec::new();
+        for f in &self.frames {
+            match counts.iter_mut().find(|c| c.0 == f.bits.len()) {
+                Some(c) => c.1 += 1,
+                None => counts.push((f.bits.len(), 1)),
+            }
+        }
+        counts
+            .into_iter()
+            .max_by_key(|&(len, n)| (n, len))
+            .map(|c| c.0)
+    }
+}
+
+/// The timing plans of a burst's marks (capture or envelope samples alike; glitches merged
+/// as [`crate::frames`] does) under each of its line-code hypotheses that has one, best
+/// score first, in the same samples. PWM and PPM only (the codes whose symbols are a mark
+/// and a space); hypotheses whose widths do not round to a consistent plan are skipped.
+pub fn plans_of(marks: &[crate::edges::Mark]) -> Vec<PlanReading> {
+    use crate::coding::{assess, BurstFrames};
+    let mut cleaned = marks.to_vec();
+    crate::bursts::merge_glitches(&mut cleaned, crate::frames::GLITCH_FRACTION);
+    let marks = &cleaned[..];
+    let candidates = assess(marks);
+    let bf = BurstFrames::new(marks);
+    candidates
+        .iter()
+        .enumerate()
+        .flat_map(|(i, c)| {
+            let runner_up = candidates
+                .iter()
+                .enumerate()
+                .find(|&(j, _)| j != i)
+                .map(|(_, o)| (o.line_code, o.score));
+            plan_for(c, &bf)
+                .unwrap_or_default()
+                .into_iter()
+                .map(move |plan| PlanReading {
+                    line_code: c.line_code,
+                    score: c.score,
+                    runner_up,
+                    plan,
+                })
+        })
+        .collect()
+}
+
+/// The plan of one line-code hypothesis of a framed burst.
+fn plan_for(
+    best: &crate::coding::Candidate,
+    bf: &crate::coding::BurstFrames<'_>,
+) -> Option<Vec<Plan>> {
+    use crate::coding::LineCode;
+    use crate::timing::{median, split_two};
+    let u = best.unit;
+    if !(u.is_finite() && u > 0.0) {
+        return None;
+    }
+    let units = |x: f64| (x / u).round();
+    let closing = best.layout.closing_mark.map(|c| units(c).max(1.0));
+    let (mut widths, mut spaces, mut periods) = (Vec::new(), Vec::new(), Vec::new());
+    for f in 0..bf.frames.len() {
+        let (_, b) = bf.frames[f];
+        let s = bf.data_start(f);
+        let last = if closing.is_some() {
+            b.checked_sub(1)?
+        } else {
+            b
+        };
+        if last < s {
+            continue;
+        }
+        for i in s..=last {
+            widths.push(bf.marks[i].width());
+            if i < b {
+                let sp = bf.space_after(i);
+                spaces.push(sp);
+                periods.push(bf.marks[i].width() + sp);
+            }
+        }
+    }
+    let shapes: Vec<Vec<Symbol>> = match best.line_code {
+        LineCode::Pwm => {
+            // The long mark as the short bit's space (common practice: 1:3/3:1, 1:2/2:1),
+            // which noise-split long marks cannot mislead; the measured long mark when it
+            // differs comes as a second plan.
+            let (short, long) = split_two(&widths)?;
+            let (a, b) = (units(short.mean).max(1.0), units(long.mean));
+            let p = units(median(&periods));
+            if p - a <= a {
+                return None;
+            }
+            let mut shapes = vec![p - a];
+            if b > a && b < p && b != p - a {
+                shapes.push(b);
+            }
+            shapes
+                .into_iter()
+                .map(|b| {
+                    vec![
+                        Symbol {
+                            mark: a,
+                            space: p - a,
+                            bit: false,
+                        },
+                        Symbol {
+                            mark: b,
+                            space: p - b,
+                            bit: true,
+                        },
+                    ]
+                })
+                .collect::<Vec<_>>()
+        }
+        LineCode::Ppm => {
+            let m = units(median(&widths)).max(1.0);
+            let (short, long) = split_two(&spaces)?;
+            let (a, b) = (units(short.mean).max(1.0), units(long.mean));
+            if b <= a {
+                return None;
+            }
+            vec![vec![
+                Symbol {
+                    mark: m,
+                    space: a,
+                    bit: false,
+                },
+                Symbol {
+                    mark: m,
+                    space: b,
+                    bit: true,
+                },
+            ]]
+        }
+        _ => return None,
+    };
+    let header = best
+        .layout
+        .header
+        .map(|(m, s)| (units(m).max(1.0), units(s).max(1.0)));
+    let longest = shapes
+        .iter()
+        .flatten()
+        .map(|s| s.space.max(s.mark))
+        .fold(0.0, f64::max);
+    // Frames part at a space clearly longer than any inside them; a measured gap tightens
+    // that, but a noisy one (stray marks read as very long gaps) must not stop frames from
+    // parting at all.
+    let gap_min = match best.layout.gap {
+        Some(g) => (0.6 * g / u).min(2.0 * longest + 4.0).max(longest + 2.0),
+        None => longest + 3.0,
+    };
+    Some(
+        shapes
+            .into_iter()
+            .map(|symbols| Plan {
+                unit: u,
+                symbols,
+                header,
+                closing,
+                gap_min,
+            })
+            .collect(),
+    )
+}
+
+/// A timing plan with the line-code evidence it was read from.
+#[derive(Debug, Clone, PartialEq)]
+pub struct PlanReading {
+    /// The line code.
+    pub line_code: crate::coding::LineCode,
+    /// Its score on the marks the plan was read from.
+    pub score: f64,
+    /// The runner-up hypothesis on those marks.
+    pub runner_up: Option<(crate::coding::LineCode, f64)>,
+    /// The plan.
+    pub plan: Plan,
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::rng::Rng;
+
+    fn pwm_plan(unit: f64) -> Plan {
+        Plan {
+            unit,
+            symbols: vec![
+                Symbol {
+                    mark: 1.0,
+                    space: 3.0,
+                    bit: false,
+                },
+                Symbol {
+                    mark: 3.0,
+                    space: 1.0,
+                    bit: true,
+                },
+            ],
+            header: None,
+            closing: Some(1.0),
+            gap_min: 8.0,
+        }
+    }
+
+    /// An on/off envelope of PWM frames, `unit` samples per unit, plus Gaussian noise.
+    fn pwm_env(bits: &[bool], unit: usize, repeats: usize, noise: f32, seed: u64) -> Vec<f32> {
+        let mut env = vec![0.0f32; 20 * unit];
+        for _ in 0..repeats {
+            for &b in bits {
+                let (on, off) = if b { (3, 1) } else { (1, 3) };
+                env.extend(std::iter::repeat_n(1.0, on * unit));
+                env.extend(std::iter::repeat_n(0.0, off * unit));
+            }
+            env.extend(std::iter::repeat_n(1.0, unit));
+            env.extend(std::iter::repeat_n(0.0, 31 * unit));
+        }
+        let mut rng = Rng::new(seed);
+        env.iter()
+            .map(|&x| x + noise * rng.gauss() as f32)
+            .collect()
+    }
+
+    fn bits_of(marks: &[(f64, f64)], unit: f64) -> Vec<bool> {
+        marks.iter().map(|(a, b)| b - a > 2.0 * unit).collect()
+    }
+
+    #[test]
+    fn clean_frames_are_found_exactly() {
+        let bits = [true, false, false, true, true, false, true, false];
+        let env = pwm_env(&bits, 16, 3, 0.0, 1);
+        let llr: Vec<f32> = env.iter().map(|x| x - 0.5).collect();
+        let marks = segment(&llr, &pwm_plan(16.0)).marks;
+        assert_eq!(marks.len(), 3 * 9);
+        let got = bits_of(&marks[..8], 16.0);
+        assert_eq!(got, bits);
+        assert_eq!(marks[0], (320.0, 368.0));
+    }
+
+    #[test]
+    fn noise_that_breaks_hard_decisions_does_not_break_the_sequence() {
+        // Per-sample SNR of 0 dB: a sample-by-sample threshold errs on a quarter of the samples.
+        let bits = [
+            true, false, true, true, false, false, true, false, true, true, false, true,
+        ];
+        let env = pwm_env(&bits, 24, 2, 1.0, 7);
+        let llr: Vec<f32> = env.iter().map(|x| x - 0.5).collect();
+        let marks = segment_frames(&llr, &pwm_plan(24.0), Some(12)).marks;
+        assert_eq!(marks.len(), 2 * 13, "{marks:?}");
+        assert_eq!(bits_of(&marks[..12], 24.0), bits);
+        assert_eq!(bits_of(&marks[13..25], 24.0), bits);
+    }
+
+    #[test]
+    fn open_frame_lengths_follow_moderate_noise() {
+        let bits = [
+            false, true, true, false, true, false, false, true, true, true,
+        ];
+        let env = pwm_env(&bits, 16, 3, 0.35, 11);
+        let llr: Vec<f32> = env.iter().map(|x| x - 0.5).collect();
+        let marks = segment(&llr, &pwm_plan(16.0)).marks;
+        assert_eq!(marks.len(), 3 * 11, "{marks:?}");
+        for f in 0..3 {
+            assert_eq!(bits_of(&marks[11 * f..11 * f + 10], 16.0), bits);
+        }
+    }
+
+    #[test]
+    fn the_right_plan_fits_and_a_wrong_unit_does_not() {
+        let bits = [true, false, true, true, false, false, true, false];
+        let env = pwm_env(&bits, 16, 3, 0.1, 13);
+        let llr: Vec<f32> = env.iter().map(|x| x - 0.5).collect();
+        let right = segment_frames(&llr, &pwm_plan(16.0), Some(8));
+        assert!(right.fit(&llr, 0.5) > 0.9, "{}", right.fit(&llr, 0.5));
+        // A unit a third too short lays marks across spaces.
+        let wrong = segment(&llr, &pwm_plan(11.0));
+        assert!(wrong.fit(&llr, 0.5) < 0.9, "{}", wrong.fit(&llr, 0.5));
+        assert_eq!(Reading::default().fit(&llr, 0.5), 0.0);
+    }
+
+    #[test]
+    fn pure_noise_yields_no_frames() {
+        let mut rng = Rng::new(3);
+        let llr: Vec<f32> = (0..20_000)
+            .map(|_| 0.3 * rng.gauss() as f32 - 0.5)
+            .collect();
+        assert!(segment(&llr, &pwm_plan(16.0)).marks.is_empty());
+    }
+
+    #[test]
+    fn a_drifting_clock_is_followed() {
+        // Unit grows 3 % over the press; the plan knows only the starting unit.
+        let bits = [
+            true, false, true, false, false, true, true, false, true, false, true, true,
+        ];
+        let mut env = vec![0.0f32; 200];
+        let mut unit = 20.0f64;
+        for _ in 0..3 {
+            for &b in &bits {
+                let (on, off) = if b { (3.0, 1.0) } else { (1.0, 3.0) };
+                env.extend(std::iter::repeat_n(1.0, (on * unit).round() as usize));
+                env.extend(std::iter::repeat_n(0.0, (off * unit).round() as usize));
+                unit *= 1.0 + 0.03 / 39.0;
+            }
+            env.extend(std::iter::repeat_n(1.0, unit.round() as usize));
+            env.extend(std::iter::repeat_n(0.0, (31.0 * unit).round() as usize));
+        }
+        let llr: Vec<f32> = env.iter().map(|x| x - 0.5).collect();
+        let marks = segment(&llr, &pwm_plan(20.0)).marks;
+        assert_eq!(marks.len(), 39);
+        for f in 0..3 {
+            assert_eq!(bits_of(&marks[13 * f..13 * f + 12], 20.0), bits);
+        }
+    }
+
+    #[test]
+    fn headers_are_laid_before_the_bits() {
+        // PPM: header 8+4, bits 1 + (1 | 3), stop mark, 40-unit gap.
+        let unit = 10usize;
+        let bits = [true, true, false, true, false, false, true, false];
+        let mut env = vec![0.0f32; 100];
+        for _ in 0..2 {
+            env.extend(std::iter::repeat_n(1.0, 8 * unit));
+            env.extend(std::iter::repeat_n(0.0, 4 * unit));
+            for &b in &bits {
+                env.extend(std::iter::repeat_n(1.0, unit));
+                env.extend(std::iter::repeat_n(0.0, if b { 3 } else { 1 } * unit));
+            }
+            env.extend(std::iter::repeat_n(1.0, unit));
+            env.extend(std::iter::repeat_n(0.0, 40 * unit));
+        }
+        let mut rng = Rng::new(5);
+        let llr: Vec<f32> = env
+            .iter()
+            .map(|x| x - 0.5 + 0.8 * rng.gauss() as f32)
+            .collect();
+        let plan = Plan {
+            unit: unit as f64,
+            symbols: vec![
+                Symbol {
+                    mark: 1.0,
+                    space: 1.0,
+                    bit: false,
+                },
+                Symbol {
+                    mark: 1.0,
+                    space: 3.0,
+                    bit: true,
+                },
+            ],
+            header: Some((8.0, 4.0)),
+            closing: Some(1.0),
+            gap_min: 10.0,
+        };
+        let marks = segment_frames(&llr, &plan, Some(8)).marks;
+        assert_eq!(marks.len(), 2 * 10, "{marks:?}");
+        let spaces: Vec<bool> = marks[1..9]
+            .windows(2)
+            .map(|w| w[1].0 - w[0].1 > 2.0 * unit as f64)
+            .chain(std::iter::once(marks[9].0 - marks[8].1 > 2.0 * unit as f64))
+            .collect();
+        assert_eq!(spaces, bits);
+        assert!(marks[0].1 - marks[0].0 > 6.0 * unit as f64);
+    }
+}
