@@ -140,17 +140,34 @@ pub fn is_regular(marks: &[Mark]) -> bool {
     width_groups(&mut w) + width_groups(&mut s) <= MAX_REGULAR_GROUPS
 }
 
+/// Marks in a row that no regular window covers, at a duty cycle of at least
+/// [`CHATTER_DUTY`], that show a capture holds chatter ([`ChatterFilter`]).
+///
+/// Chatter at the synth's model (about 1300 marks a second) gives this many in about 50 ms;
+/// a press is either regular or, when noise breaks its marks, short: the longest press the
+/// round-trip tests write noisy (12 bits, 3 repeats) has about 40 marks.
+pub const CHATTER_EVIDENCE: usize = 64;
+/// Share of the time the evidence's marks are on at least: chatter is on about half the time
+/// (common practice), the false marks of noise near the floor a few per cent.
+pub const CHATTER_DUTY: f64 = 0.2;
+
 /// Streaming separation of a code's marks from a superregenerative receiver's idle chatter.
 ///
 /// Such a receiver's data output is never quiet while nothing transmits: it chatters with
 /// full-scale pulses of random width, so neither level nor silence tells chatter from a code;
 /// only regularity does. A code's marks and spaces take a few widths and repeat; chatter's are
 /// scattered (common practice). Every window of [`CHATTER_WINDOW`] consecutive marks is judged
-/// by [`is_regular`]; a mark inside at least one regular window is kept, any other is chatter
-/// and dropped, so the stretch it covered reads as silence. A run of marks between silences
-/// longer than `max_quiet` that is shorter than a window cannot be judged and is kept whole.
+/// by [`is_regular`]; a mark inside at least one regular window is regular.
 ///
-/// Marks come out in order, delayed by at most one window.
+/// Nothing is dropped until the capture shows chatter at all: [`CHATTER_EVIDENCE`] irregular
+/// marks in a row, on at least [`CHATTER_DUTY`] of their span (a noisy press breaks into
+/// irregular marks too, but not that many in a row, and the false marks of noise are sparse).
+/// Those marks are dropped and, from then on, so is every irregular mark, so the stretches
+/// chatter covered read as silence. Before that, irregular marks are held (at most
+/// [`CHATTER_EVIDENCE`]) and released unchanged. A run of marks between silences longer than
+/// `max_quiet` that is shorter than a window cannot be judged and is kept whole.
+///
+/// Marks come out in order, delayed by at most a window and the evidence.
 ///
 /// ```
 /// use ooksift::bursts::ChatterFilter;
@@ -160,7 +177,7 @@ pub fn is_regular(marks: &[Mark]) -> bool {
 /// let mut kept = Vec::new();
 /// // Scattered widths, then a regular code of 40 marks.
 /// let mut t = 0.0;
-/// for k in 0..40u32 {
+/// for k in 0..200u32 {
 ///     let w = 3.0 * 1.9f64.powi((k * 7 % 6) as i32);
 ///     f.push(mk(t, w), &mut kept);
 ///     t += w + 3.0 * 1.7f64.powi((k * 5 % 7) as i32);
@@ -170,16 +187,24 @@ pub fn is_regular(marks: &[Mark]) -> bool {
 ///     t += 40.0;
 /// }
 /// f.flush(&mut kept);
+/// assert!(f.chatter_seen());
 /// assert!(kept.len() >= 40 && kept.len() <= 42, "{}", kept.len());
 /// ```
 #[derive(Debug, Clone)]
 pub struct ChatterFilter {
-    /// Marks not yet released, each with whether a regular window covered it.
-    queue: std::collections::VecDeque<(Mark, bool)>,
+    /// Marks not yet judged by every window they belong to, each with whether a regular
+    /// window covered it.
+    queue: std::collections::VecDeque<Mark>,
+    regular: std::collections::VecDeque<bool>,
+    /// Judged irregular marks held while no chatter has been seen, and their summed width.
+    hold: std::collections::VecDeque<Mark>,
+    hold_on: f64,
     /// Marks in the current run (since the last silence).
     run: usize,
     /// A silence longer than this ends a run.
     max_quiet: f64,
+    /// The capture has shown chatter: irregular marks are dropped.
+    seen: bool,
     /// Marks dropped as chatter so far.
     dropped: u64,
 }
@@ -189,66 +214,115 @@ impl ChatterFilter {
     pub fn new(max_quiet: f64) -> ChatterFilter {
         ChatterFilter {
             queue: std::collections::VecDeque::with_capacity(CHATTER_WINDOW),
+            regular: std::collections::VecDeque::with_capacity(CHATTER_WINDOW),
+            hold: std::collections::VecDeque::new(),
+            hold_on: 0.0,
             run: 0,
             max_quiet,
+            seen: false,
             dropped: 0,
+        }
+    }
+
+    /// A filter that drops irregular marks from the start, as if chatter had been seen.
+    pub fn dropping(max_quiet: f64) -> ChatterFilter {
+        ChatterFilter {
+            seen: true,
+            ..ChatterFilter::new(max_quiet)
         }
     }
 
     /// Adds the next mark; marks that leave the window are appended to `out` when kept.
     pub fn push(&mut self, m: Mark, out: &mut Vec<Mark>) {
-        if matches!(self.queue.back(), Some((b, _)) if m.rise - b.fall > self.max_quiet) {
+        if matches!(self.queue.back(), Some(b) if m.rise - b.fall > self.max_quiet) {
             self.flush(out);
         }
-        self.queue.push_back((m, false));
+        self.queue.push_back(m);
+        self.regular.push_back(false);
         self.run += 1;
         let n = self.queue.len();
         if n >= CHATTER_WINDOW {
-            let window: Vec<Mark> = self
-                .queue
-                .range(n - CHATTER_WINDOW..)
-                .map(|(m, _)| *m)
-                .collect();
+            let window: Vec<Mark> = self.queue.range(n - CHATTER_WINDOW..).copied().collect();
             if is_regular(&window) {
-                for e in self.queue.range_mut(n - CHATTER_WINDOW..) {
-                    e.1 = true;
+                for r in self.regular.range_mut(n - CHATTER_WINDOW..) {
+                    *r = true;
                 }
             }
             if n == CHATTER_WINDOW {
-                if let Some(e) = self.queue.pop_front() {
-                    self.release(e, out);
-                }
+                self.release_front(out);
             }
         }
     }
 
-    fn release(&mut self, (m, regular): (Mark, bool), out: &mut Vec<Mark>) {
+    /// Releases the oldest queued mark, whose windows have all been judged.
+    fn release_front(&mut self, out: &mut Vec<Mark>) {
+        let (Some(m), Some(regular)) = (self.queue.pop_front(), self.regular.pop_front()) else {
+            return;
+        };
         if regular || self.run < CHATTER_WINDOW {
+            self.release_hold(out);
             out.push(m);
-        } else {
+        } else if self.seen {
             self.dropped += 1;
+        } else {
+            self.hold_on += m.width();
+            self.hold.push_back(m);
+            if self.hold.len() >= CHATTER_EVIDENCE {
+                self.judge_hold(out);
+            }
         }
+    }
+
+    /// A full hold is chatter when its marks are on long enough: all are dropped and the
+    /// filter drops irregular marks from then on. Otherwise the oldest is released.
+    fn judge_hold(&mut self, out: &mut Vec<Mark>) {
+        let span = match (self.hold.front(), self.hold.back()) {
+            (Some(a), Some(b)) => b.fall - a.rise,
+            _ => return,
+        };
+        if span > 0.0 && self.hold_on >= CHATTER_DUTY * span {
+            self.seen = true;
+            self.dropped += self.hold.len() as u64;
+            self.hold.clear();
+            self.hold_on = 0.0;
+        } else if let Some(m) = self.hold.pop_front() {
+            self.hold_on -= m.width();
+            out.push(m);
+        }
+    }
+
+    /// Releases every held mark unchanged.
+    fn release_hold(&mut self, out: &mut Vec<Mark>) {
+        out.extend(self.hold.drain(..));
+        self.hold_on = 0.0;
     }
 
     /// Nothing happened up to `pos`: ends the run when the silence has grown past
     /// `max_quiet`, releasing its last marks.
     pub fn idle_until(&mut self, pos: f64, out: &mut Vec<Mark>) {
-        if matches!(self.queue.back(), Some((b, _)) if pos - b.fall > self.max_quiet) {
+        let last = self.queue.back().or(self.hold.back());
+        if matches!(last, Some(b) if pos - b.fall > self.max_quiet) {
             self.flush(out);
         }
     }
 
     /// Ends the run: releases every mark still held.
     pub fn flush(&mut self, out: &mut Vec<Mark>) {
-        while let Some(e) = self.queue.pop_front() {
-            self.release(e, out);
+        while !self.queue.is_empty() {
+            self.release_front(out);
         }
+        self.release_hold(out);
         self.run = 0;
     }
 
     /// Rising edge of the earliest mark still held.
     pub fn first_pending(&self) -> Option<f64> {
-        self.queue.front().map(|(m, _)| m.rise)
+        self.hold.front().or(self.queue.front()).map(|m| m.rise)
+    }
+
+    /// Whether the capture has shown chatter (irregular marks are being dropped).
+    pub fn chatter_seen(&self) -> bool {
+        self.seen
     }
 
     /// Marks dropped as chatter so far.
@@ -261,7 +335,7 @@ impl ChatterFilter {
 /// run), then [`trim_misfits`]. Returns how many marks were removed.
 pub fn strip_chatter(marks: &mut Vec<Mark>) -> usize {
     let before = marks.len();
-    let mut f = ChatterFilter::new(f64::INFINITY);
+    let mut f = ChatterFilter::dropping(f64::INFINITY);
     let mut out = Vec::with_capacity(marks.len());
     for m in marks.drain(..) {
         f.push(m, &mut out);
@@ -590,6 +664,12 @@ impl BurstSplitter {
     /// Marks dropped as chatter so far.
     pub fn chatter_dropped(&self) -> u64 {
         self.chatter.dropped()
+    }
+
+    /// Whether the capture has shown a superregenerative receiver's chatter
+    /// ([`ChatterFilter`]).
+    pub fn chatter_seen(&self) -> bool {
+        self.chatter.chatter_seen()
     }
 
     /// Closes the last burst at the end of the capture.

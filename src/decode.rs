@@ -241,14 +241,66 @@ impl Decoder {
         let unit_env = rough.unit / self.env.decim();
         let half = ((0.3 * unit_env) / 2.0).floor() as usize;
         let marks = self.smoothed_marks(burst, half, 16.0 * unit_env)?;
-        let press = frames::decode_press_with(
+        let press = self.read_press(&Burst {
+            marks: marks.clone(),
+            capped: burst.capped,
+        });
+        Some((press, marks))
+    }
+
+    /// The edge reading of one burst. Once the capture has shown a superregenerative
+    /// receiver's chatter, the burst is read with its irregular marks and the misfits at its
+    /// ends removed ([`crate::bursts::strip_chatter`]) — a stretch of chatter next to a press
+    /// is trimmed — unless a reading of the whole burst with repeats explains every removed
+    /// mark (each lies within a mark of one of its full frames, half a unit either way): marks
+    /// a line code explains are never lost to the trimming. Of the two readings the one with
+    /// more frames then wins, the whole on a tie.
+    fn read_press(&self, burst: &Burst) -> Option<PressDecode> {
+        let whole = frames::decode_press_with(burst, &self.press_opts);
+        if !self.bursts.chatter_seen() {
+            return whole;
+        }
+        let mut marks = burst.marks.clone();
+        if crate::bursts::strip_chatter(&mut marks) == 0 {
+            return whole;
+        }
+        // The removed marks: stripping keeps the order, so one walk finds them.
+        let mut kept = marks.iter().peekable();
+        let removed: Vec<&Mark> = burst
+            .marks
+            .iter()
+            .filter(|m| {
+                if kept.peek() == Some(m) {
+                    kept.next();
+                    false
+                } else {
+                    true
+                }
+            })
+            .collect();
+        let explained = whole.as_ref().is_some_and(|p| {
+            let tol = 0.5 * p.unit;
+            let frame_marks: Vec<(f64, f64)> =
+                p.frames.iter().flat_map(|f| f.marks.iter().copied()).collect();
+            p.frames.len() >= 2
+                && removed.iter().all(|m| {
+                    // Frame marks are in order: the last one rising before this mark.
+                    let i = frame_marks.partition_point(|&(r, _)| r - tol <= m.rise);
+                    i > 0 && frame_marks[i - 1].1 + tol >= m.fall
+                })
+        });
+        let stripped = frames::decode_press_with(
             &Burst {
-                marks: marks.clone(),
+                marks,
                 capped: burst.capped,
             },
             &self.press_opts,
         );
-        Some((press, marks))
+        if explained {
+            better(stripped, whole)
+        } else {
+            stripped
+        }
     }
 
     /// The burst's envelope history (from a margin before it to `after` envelope samples
@@ -575,7 +627,7 @@ impl Decoder {
                     );
                 }
             }
-            let first = frames::decode_press_with(&b, &self.press_opts);
+            let first = self.read_press(&b);
             let (second, second_marks) = match self.reslice(&b) {
                 Some((p, m)) => (p, Some(m)),
                 None => (None, None),

@@ -163,7 +163,6 @@ pub fn decode_press(burst: &Burst) -> Option<PressDecode> {
 /// [`decode_press`] with options.
 pub fn decode_press_with(burst: &Burst, opts: &PressOptions) -> Option<PressDecode> {
     let mut cleaned = burst.marks.clone();
-    crate::bursts::strip_chatter(&mut cleaned);
     crate::bursts::merge_glitches(&mut cleaned, GLITCH_FRACTION);
     let burst = &Burst {
         marks: cleaned,
