@@ -110,24 +110,38 @@ pub const GROUP_RATIO: f64 = 1.2;
 /// 3 of 10 000 windows of 16 marks (a seeded simulation, `width_groups_of_chatter_are_many`).
 pub const MAX_REGULAR_GROUPS: usize = 8;
 
+/// A group spans at most this ratio from its narrowest width: a code's widths of one kind
+/// lie within a few per cent of each other (a sample or two of noise at six samples a unit),
+/// while chatter's scattered widths, sorted, can chain at steps below [`GROUP_RATIO`] over
+/// a far wider range.
+pub const GROUP_SPAN: f64 = 1.5;
+
 /// Number of groups the widths fall into: sorted, a new group starts wherever a width
-/// exceeds the one before by more than [`GROUP_RATIO`]. Sorts `widths` in place. Widths that
-/// are not positive and finite are ignored.
+/// exceeds the one before by more than [`GROUP_RATIO`], or the group's narrowest by more than
+/// [`GROUP_SPAN`]. Sorts `widths` in place. Widths that are not positive and finite are
+/// ignored.
 ///
 /// ```
 /// let mut w = [1.0, 3.1, 0.95, 2.9, 1.05, 3.0];
 /// assert_eq!(ooksift::bursts::width_groups(&mut w), 2);
+/// // Steps below 1.2 each, but a span of 2.3: two groups.
+/// let mut chain = [1.0, 1.15, 1.3, 1.5, 1.7, 1.95, 2.3];
+/// assert_eq!(ooksift::bursts::width_groups(&mut chain), 2);
 /// ```
 pub fn width_groups(widths: &mut [f64]) -> usize {
     widths.sort_by(f64::total_cmp);
     let mut groups = 0;
-    let mut prev: Option<f64> = None;
+    let mut prev: Option<(f64, f64)> = None;
     for &w in widths.iter().filter(|w| w.is_finite() && **w > 0.0) {
         match prev {
-            Some(p) if w <= GROUP_RATIO * p => {}
-            _ => groups += 1,
+            Some((first, p)) if w <= GROUP_RATIO * p && w <= GROUP_SPAN * first => {
+                prev = Some((first, w));
+            }
+            _ => {
+                groups += 1;
+                prev = Some((w, w));
+            }
         }
-        prev = Some(w);
     }
     groups
 }
