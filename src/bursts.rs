@@ -157,9 +157,9 @@ pub fn is_regular(marks: &[Mark]) -> bool {
 /// Marks in a row that no regular window covers, at a duty cycle of at least
 /// [`CHATTER_DUTY`], that show a capture holds chatter ([`ChatterFilter`]).
 ///
-/// Chatter at the synth's model (about 1300 marks a second) gives this many in about 50 ms;
-/// a press is either regular or, when noise breaks its marks, short: the longest press the
-/// round-trip tests write noisy (12 bits, 3 repeats) has about 40 marks.
+/// Chatter at the synth's model (about 1300 marks a second) gives this many in about 50 ms.
+/// A press noise has broken is irregular too, but regular again once its glitches are merged
+/// (see [`ChatterFilter`]).
 pub const CHATTER_EVIDENCE: usize = 64;
 /// Share of the time the evidence's marks are on at least: chatter is on about half the time
 /// (common practice), the false marks of noise near the floor a few per cent.
@@ -174,8 +174,9 @@ pub const CHATTER_DUTY: f64 = 0.2;
 /// by [`is_regular`]; a mark inside at least one regular window is regular.
 ///
 /// Nothing is dropped until the capture shows chatter at all: [`CHATTER_EVIDENCE`] irregular
-/// marks in a row, on at least [`CHATTER_DUTY`] of their span (a noisy press breaks into
-/// irregular marks too, but not that many in a row, and the false marks of noise are sparse).
+/// marks in a row, on at least [`CHATTER_DUTY`] of their span, that stay irregular once
+/// glitches are merged (the false marks of noise are sparse, and a press noise has broken
+/// into irregular marks is regular again once its dips are bridged and spikes dropped).
 /// Those marks are dropped and, from then on, so is every irregular mark, so the stretches
 /// chatter covered read as silence. Before that, irregular marks are held (at most
 /// [`CHATTER_EVIDENCE`]) and released unchanged. A run of marks between silences longer than
@@ -294,7 +295,7 @@ impl ChatterFilter {
             (Some(a), Some(b)) => b.fall - a.rise,
             _ => return,
         };
-        if span > 0.0 && self.hold_on >= CHATTER_DUTY * span {
+        if span > 0.0 && self.hold_on >= CHATTER_DUTY * span && !self.hold_is_broken_code() {
             self.seen = true;
             self.dropped += self.hold.len() as u64;
             self.hold.clear();
@@ -303,6 +304,17 @@ impl ChatterFilter {
             self.hold_on -= m.width();
             out.push(m);
         }
+    }
+
+    /// Whether the held marks are a code broken by noise rather than chatter: once glitches
+    /// are merged as a press's reading merges them ([`merge_glitches`] at
+    /// [`crate::frames::GLITCH_FRACTION`]), at least half their windows are regular.
+    fn hold_is_broken_code(&self) -> bool {
+        let mut m: Vec<Mark> = self.hold.iter().copied().collect();
+        merge_glitches(&mut m, crate::frames::GLITCH_FRACTION);
+        let windows = m.len().saturating_sub(CHATTER_WINDOW - 1);
+        let regular = m.windows(CHATTER_WINDOW).filter(|w| is_regular(w)).count();
+        windows > 0 && 2 * regular >= windows
     }
 
     /// Releases every held mark unchanged.
@@ -863,6 +875,78 @@ mod tests {
             assert_eq!(&m, code);
             assert!(!burst.capped);
         }
+    }
+
+    /// A PWM press whose marks noise has broken (every third mark split by a dip, a spike
+    /// in some spaces): its windows are irregular, yet with no chatter in the capture it
+    /// must reach the burst rule whole.
+    fn broken_press(t: f64) -> Vec<Mark> {
+        let code = shifted(
+            &crate::coding::test_marks::pwm("110100101101001011110001", 35.0, 3),
+            t,
+        );
+        let mut out = Vec::new();
+        for (k, m) in code.iter().enumerate() {
+            if k % 3 == 0 {
+                let cut = m.rise + 0.37 * m.width();
+                out.push(Mark { fall: cut, ..*m });
+                out.push(Mark {
+                    rise: cut + 2.0 + (k % 5) as f64,
+                    ..*m
+                });
+            } else {
+                out.push(*m);
+            }
+            if k % 4 == 1 {
+                let r = m.fall + 9.0 + (k % 7) as f64;
+                out.push(Mark {
+                    rise: r,
+                    fall: r + 1.5 + (k % 3) as f64,
+                    ..*m
+                });
+            }
+        }
+        out
+    }
+
+    #[test]
+    fn nothing_is_dropped_until_chatter_is_seen() {
+        // Sparse weak-noise marks (short, far apart: a low duty) and a broken press: no
+        // chatter is seen and every mark comes out, in order.
+        let mut marks: Vec<Mark> = (0..300)
+            .map(|k| Mark {
+                rise: 400.0 * k as f64 + (k * 37 % 101) as f64,
+                fall: 400.0 * k as f64 + (k * 37 % 101) as f64 + 1.0 + (k % 4) as f64,
+                level: 0.2,
+                noise: 0.01,
+                lag: Default::default(),
+            })
+            .collect();
+        let press = broken_press(125_000.0);
+        assert!(press.windows(CHATTER_WINDOW).any(|w| !is_regular(w)));
+        marks.extend(press.iter().copied());
+        let mut f = ChatterFilter::new(f64::INFINITY);
+        let mut out = Vec::new();
+        for m in &marks {
+            f.push(*m, &mut out);
+        }
+        f.flush(&mut out);
+        assert!(!f.chatter_seen());
+        assert_eq!(f.dropped(), 0);
+        assert_eq!(out, marks);
+        // The same press after chatter: the chatter is seen and dropped.
+        let mut rng = crate::rng::Rng::new(3);
+        let mut marks = chatter(&mut rng, 0.0, 20_000.0);
+        let n = marks.len();
+        marks.extend(broken_press(25_000.0));
+        let mut f = ChatterFilter::new(f64::INFINITY);
+        let mut out = Vec::new();
+        for m in &marks {
+            f.push(*m, &mut out);
+        }
+        f.flush(&mut out);
+        assert!(f.chatter_seen());
+        assert!(f.dropped() as usize > n * 9 / 10, "{} of {n}", f.dropped());
     }
 
     #[test]

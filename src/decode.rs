@@ -254,7 +254,8 @@ impl Decoder {
     /// is trimmed — unless a reading of the whole burst with repeats explains every removed
     /// mark (each lies within a mark of one of its full frames, half a unit either way): marks
     /// a line code explains are never lost to the trimming. Of the two readings the one with
-    /// more frames then wins, the whole on a tie.
+    /// more frames then wins, the whole on a tie. Either is first confined to its full frames
+    /// ([`Decoder::within_frames`]).
     fn read_press(&self, burst: &Burst) -> Option<PressDecode> {
         let whole = frames::decode_press_with(burst, &self.press_opts);
         if !self.bursts.chatter_seen() {
@@ -262,7 +263,7 @@ impl Decoder {
         }
         let mut marks = burst.marks.clone();
         if crate::bursts::strip_chatter(&mut marks) == 0 {
-            return whole;
+            return self.within_frames(whole, burst);
         }
         // The removed marks: stripping keeps the order, so one walk finds them.
         let mut kept = marks.iter().peekable();
@@ -289,17 +290,52 @@ impl Decoder {
                     i > 0 && frame_marks[i - 1].1 + tol >= m.fall
                 })
         });
-        let stripped = frames::decode_press_with(
+        let stripped_burst = Burst {
+            marks,
+            capped: burst.capped,
+        };
+        let stripped = frames::decode_press_with(&stripped_burst, &self.press_opts);
+        let stripped = self.within_frames(stripped, &stripped_burst);
+        if explained {
+            better(stripped, self.within_frames(whole, burst))
+        } else {
+            stripped
+        }
+    }
+
+    /// Amid chatter, marks of a burst before its reading's first full frame or after its last
+    /// (half a unit either way) are chatter that fitted the code's widths, not a partial
+    /// frame: the burst is read again without them, and that reading kept when it finds the
+    /// same bits in as many full frames (the press then starts and ends with its frames).
+    fn within_frames(&self, press: Option<PressDecode>, burst: &Burst) -> Option<PressDecode> {
+        let p = press?;
+        let (Some(first), Some(last)) = (p.frames.first(), p.frames.last()) else {
+            return Some(p);
+        };
+        if p.frames.len() < 2 {
+            return Some(p);
+        }
+        let tol = 0.5 * p.unit;
+        let (a, b) = (first.start - tol, last.end + tol);
+        let inside: Vec<Mark> = burst
+            .marks
+            .iter()
+            .filter(|m| m.rise >= a && m.fall <= b)
+            .copied()
+            .collect();
+        if inside.len() == burst.marks.len() {
+            return Some(p);
+        }
+        let again = frames::decode_press_with(
             &Burst {
-                marks,
+                marks: inside,
                 capped: burst.capped,
             },
             &self.press_opts,
         );
-        if explained {
-            better(stripped, whole)
-        } else {
-            stripped
+        match again {
+            Some(q) if q.bits == p.bits && q.frames.len() >= p.frames.len() => Some(q),
+            _ => Some(p),
         }
     }
 
