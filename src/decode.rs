@@ -281,8 +281,11 @@ impl Decoder {
             .collect();
         let explained = whole.as_ref().is_some_and(|p| {
             let tol = 0.5 * p.unit;
-            let frame_marks: Vec<(f64, f64)> =
-                p.frames.iter().flat_map(|f| f.marks.iter().copied()).collect();
+            let frame_marks: Vec<(f64, f64)> = p
+                .frames
+                .iter()
+                .flat_map(|f| f.marks.iter().copied())
+                .collect();
             p.frames.len() >= 2
                 && removed.iter().all(|m| {
                     // Frame marks are in order: the last one rising before this mark.

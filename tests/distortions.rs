@@ -356,7 +356,10 @@ fn sixty_seconds_of_superregenerative_chatter_give_no_code() {
         };
         assert_eq!(r["codes"].as_array().map(Vec::len), Some(0), "{fmt}: {r}");
         // The chatter was there to be seen: the capture is a minute long.
-        assert!(r["capture"]["duration_s"].as_f64() >= Some(60.0), "{fmt}: {r}");
+        assert!(
+            r["capture"]["duration_s"].as_f64() >= Some(60.0),
+            "{fmt}: {r}"
+        );
     }
 }
 
