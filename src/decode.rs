@@ -154,6 +154,7 @@ impl Decoder {
         let decim = env.decim();
         let env_rate = rate / decim;
         let mut bcfg = BurstConfig::for_rate(rate);
+        bcfg.drop_chatter = !info.is_iq();
         if let Some(ms) = opts.press_gap_ms {
             bcfg.min_gap = ms * rate / 1e3;
         }
@@ -240,14 +241,105 @@ impl Decoder {
         let unit_env = rough.unit / self.env.decim();
         let half = ((0.3 * unit_env) / 2.0).floor() as usize;
         let marks = self.smoothed_marks(burst, half, 16.0 * unit_env)?;
-        let press = frames::decode_press_with(
+        let press = self.read_press(&Burst {
+            marks: marks.clone(),
+            capped: burst.capped,
+        });
+        Some((press, marks))
+    }
+
+    /// The edge reading of one burst. Once the capture has shown a superregenerative
+    /// receiver's chatter, the burst is read with its irregular marks and the misfits at its
+    /// ends removed ([`crate::bursts::strip_chatter`]) — a stretch of chatter next to a press
+    /// is trimmed — unless a reading of the whole burst with repeats explains every removed
+    /// mark (each lies within a mark of one of its full frames, half a unit either way): marks
+    /// a line code explains are never lost to the trimming. Of the two readings the one with
+    /// more frames then wins, the whole on a tie. Either is first confined to its full frames
+    /// ([`Decoder::within_frames`]).
+    fn read_press(&self, burst: &Burst) -> Option<PressDecode> {
+        let whole = frames::decode_press_with(burst, &self.press_opts);
+        if !self.bursts.chatter_seen() {
+            return whole;
+        }
+        let mut marks = burst.marks.clone();
+        if crate::bursts::strip_chatter(&mut marks) == 0 {
+            return self.within_frames(whole, burst);
+        }
+        // The removed marks: stripping keeps the order, so one walk finds them.
+        let mut kept = marks.iter().peekable();
+        let removed: Vec<&Mark> = burst
+            .marks
+            .iter()
+            .filter(|m| {
+                if kept.peek() == Some(m) {
+                    kept.next();
+                    false
+                } else {
+                    true
+                }
+            })
+            .collect();
+        let explained = whole.as_ref().is_some_and(|p| {
+            let tol = 0.5 * p.unit;
+            let frame_marks: Vec<(f64, f64)> = p
+                .frames
+                .iter()
+                .flat_map(|f| f.marks.iter().copied())
+                .collect();
+            p.frames.len() >= 2
+                && removed.iter().all(|m| {
+                    // Frame marks are in order: the last one rising before this mark.
+                    let i = frame_marks.partition_point(|&(r, _)| r - tol <= m.rise);
+                    i > 0 && frame_marks[i - 1].1 + tol >= m.fall
+                })
+        });
+        let stripped_burst = Burst {
+            marks,
+            capped: burst.capped,
+        };
+        let stripped = frames::decode_press_with(&stripped_burst, &self.press_opts);
+        let stripped = self.within_frames(stripped, &stripped_burst);
+        if explained {
+            better(stripped, self.within_frames(whole, burst))
+        } else {
+            stripped
+        }
+    }
+
+    /// Amid chatter, marks of a burst before its reading's first full frame or after its last
+    /// (half a unit either way) are chatter that fitted the code's widths, not a partial
+    /// frame: the burst is read again without them, and that reading kept when it finds the
+    /// same bits in as many full frames (the press then starts and ends with its frames).
+    fn within_frames(&self, press: Option<PressDecode>, burst: &Burst) -> Option<PressDecode> {
+        let p = press?;
+        let (Some(first), Some(last)) = (p.frames.first(), p.frames.last()) else {
+            return Some(p);
+        };
+        if p.frames.len() < 2 {
+            return Some(p);
+        }
+        let tol = 0.5 * p.unit;
+        let (a, b) = (first.start - tol, last.end + tol);
+        let inside: Vec<Mark> = burst
+            .marks
+            .iter()
+            .filter(|m| m.rise >= a && m.fall <= b)
+            .copied()
+            .collect();
+        if inside.len() == burst.marks.len() {
+            return Some(p);
+        }
+        let again = frames::decode_press_with(
             &Burst {
-                marks: marks.clone(),
+                marks: inside,
                 capped: burst.capped,
             },
             &self.press_opts,
         );
-        Some((press, marks))
+        match again {
+            Some(q) if q.bits == p.bits && q.frames.len() >= p.frames.len() => Some(q),
+            _ => Some(p),
+        }
     }
 
     /// The burst's envelope history (from a margin before it to `after` envelope samples
@@ -601,7 +693,7 @@ impl Decoder {
                     );
                 }
             }
-            let first = frames::decode_press_with(&b, &self.press_opts);
+            let first = self.read_press(&b);
             let (second, second_marks) = match self.reslice(&b) {
                 Some((p, m)) => (p, Some(m)),
                 None => (None, None),

@@ -45,6 +45,12 @@ impl Mark {
     }
 }
 
+/// Samples the detector's second look at the floor takes at most.
+pub const SETTLE_SAMPLES: usize = 8192;
+/// Class means this many pooled spreads apart are two levels (a Gaussian cut in two halves
+/// gives about 2.7).
+pub const SETTLE_SEPARATION: f64 = 4.0;
+
 /// Tuning of [`EdgeDetector`], in envelope samples.
 #[derive(Debug, Clone)]
 pub struct EdgeConfig {
@@ -92,6 +98,10 @@ pub struct EdgeDetector {
     floor: f32,
     dev: f32,
     seen: u64,
+    /// The first [`SETTLE_SAMPLES`]-bounded `floor_tau` samples, idle and marks alike, for one
+    /// second look at the floor ([`EdgeDetector::settle_floor`]); emptied once used.
+    settle: Vec<f32>,
+    settled: bool,
     recent_level: f32,
     /// The last `hist_len` samples, at `index & (ring.len() - 1)` (a power-of-two ring, so no
     /// division per sample).
@@ -130,6 +140,8 @@ impl EdgeDetector {
             floor: 0.0,
             dev: 0.0,
             seen: 0,
+            settle: Vec::new(),
+            settled: false,
             recent_level: 0.0,
             in_mark: false,
             det: 0,
@@ -188,6 +200,12 @@ impl EdgeDetector {
             if let Some(r) = self.ring.get_mut(i as usize & mask) {
                 *r = x;
             }
+            if !self.settled {
+                self.settle.push(x);
+                if self.settle.len() >= self.settle_len() {
+                    self.settle_floor();
+                }
+            }
             if !self.in_mark {
                 if self.idle_sample(x) {
                     self.start_mark(i, x, wide(n));
@@ -234,6 +252,66 @@ impl EdgeDetector {
         }
         self.recent_level *= self.level_decay;
         false
+    }
+
+    fn settle_len(&self) -> usize {
+        (self.cfg.floor_tau as usize).clamp(64, SETTLE_SAMPLES)
+    }
+
+    /// A second look at the floor once `floor_tau` samples are in (issue 4): a warm-up that
+    /// fell inside a superregenerative receiver's chatter (or a press) can put the floor and
+    /// the spread far too high, and the trackers, which learn slowly on purpose, then take
+    /// hundreds of milliseconds to come down — blind to every mark meanwhile. When the
+    /// samples so far split clearly in two levels (Otsu's cut; the class means at least
+    /// [`SETTLE_SEPARATION`] pooled spreads apart, each class at least a tenth of the
+    /// samples) and the lower class's median lies below the floor, that median becomes the
+    /// floor and the lower class's spread (1.4826 × the median deviation of its lower half,
+    /// common practice for a Gaussian) the spread. Otherwise nothing changes.
+    fn settle_floor(&mut self) {
+        self.settled = true;
+        let mut v = std::mem::take(&mut self.settle);
+        v.retain(|x| x.is_finite());
+        let n = v.len();
+        if n < 20 {
+            return;
+        }
+        v.sort_by(f32::total_cmp);
+        let x: Vec<f64> = v.iter().map(|&x| x as f64).collect();
+        let total: f64 = x.iter().sum();
+        let total2: f64 = x.iter().map(|a| a * a).sum();
+        // Otsu's cut: the split maximising the between-class variance.
+        let (mut best, mut cut) = (0.0, 0);
+        let mut acc = 0.0;
+        for k in 1..n {
+            acc += x[k - 1];
+            let (n0, n1) = (k as f64, (n - k) as f64);
+            let d = acc / n0 - (total - acc) / n1;
+            let between = n0 * n1 * d * d;
+            if between > best {
+                best = between;
+                cut = k;
+            }
+        }
+        if cut < n / 10 || n - cut < n / 10 {
+            return;
+        }
+        let (lo, hi) = x.split_at(cut);
+        let mean = |c: &[f64]| c.iter().sum::<f64>() / c.len() as f64;
+        let (m0, m1) = (mean(lo), mean(hi));
+        // Pooled within-class variance: total minus between.
+        let within = (total2 / n as f64 - (total / n as f64).powi(2)) - best / (n as f64).powi(2);
+        if within <= 0.0 || m1 - m0 < SETTLE_SEPARATION * within.sqrt() {
+            return;
+        }
+        let med = lo[lo.len() / 2];
+        let lower = &lo[..lo.len() / 2];
+        let mut dev: Vec<f64> = lower.iter().map(|&a| med - a).collect();
+        dev.sort_by(f64::total_cmp);
+        let sigma = 1.4826 * dev.get(dev.len() / 2).copied().unwrap_or(0.0);
+        if (med as f32) < self.floor && sigma.is_finite() && sigma > 0.0 {
+            self.floor = med as f32;
+            self.dev = (sigma / 1.2533) as f32;
+        }
     }
 
     fn start_mark(&mut self, i: u64, x: f32, l: Complex64) {
@@ -506,6 +584,66 @@ mod tests {
         }
         d.finish(&mut out);
         out
+    }
+
+    #[test]
+    fn a_warm_up_inside_chatter_is_corrected_after_floor_tau() {
+        // Issue 4: the warm-up (100 samples at 200 kHz) falls inside a full-level chatter
+        // mark, so floor and spread start at the mark's level; the chatter then goes on at
+        // half the time on. Once `floor_tau` (4000) samples are in, the second look at the
+        // floor puts it back at the idle level, and the chatter's marks are seen from there
+        // (without it, the trackers take far longer than this test's 50 000 samples).
+        let mut rng = Rng::new(5);
+        let w = |rng: &mut Rng| 6.0 * 50f64.powf(rng.uniform());
+        let mut truth = vec![(0.0, 400.0)];
+        let mut t = 400.0 + w(&mut rng);
+        while t < 49_000.0 {
+            let m = w(&mut rng);
+            truth.push((t, t + m));
+            t += m + w(&mut rng);
+        }
+        let env = render(50_000, &truth, 1.0, 0.12, 6);
+        let mut d = EdgeDetector::new(EdgeConfig::for_rate(200_000.0));
+        let mut marks = Vec::new();
+        d.process(&env[..4_500], &[], &mut marks);
+        let (floor, sigma) = d.floor_and_noise();
+        assert!((floor - 0.05).abs() < 0.03, "floor {floor}");
+        assert!((sigma - 0.12).abs() < 0.03, "spread {sigma}");
+        d.process(&env[4_500..], &[], &mut marks);
+        let after = |v: &mut dyn Iterator<Item = f64>| v.filter(|&r| r > 5_000.0).count();
+        let want = after(&mut truth.iter().map(|m| m.0));
+        let got = after(&mut marks.iter().map(|m| m.rise));
+        assert!(want > 200, "{want}");
+        assert!(got >= want * 9 / 10, "{got} of {want} chatter marks seen");
+    }
+
+    #[test]
+    fn chatter_from_the_first_sample_does_not_blind_the_detector() {
+        // Issue 4: a capture that starts amid a superregenerative receiver's chatter (full
+        // level, half the time on, widths log-uniform over 6–300 samples). The floor must
+        // stay at the idle level, so the chatter's marks are seen all through.
+        let mut rng = Rng::new(21);
+        let w = |rng: &mut Rng| 6.0 * 50f64.powf(rng.uniform());
+        let mut truth = Vec::new();
+        let mut t = 0.0;
+        while t < 190_000.0 {
+            let m = w(&mut rng);
+            truth.push((t, t + m));
+            t += m + w(&mut rng);
+        }
+        let env = render(200_000, &truth, 4.0, 0.03, 22);
+        let marks = run(&env, 4096);
+        let late = |v: &[f64]| v.iter().filter(|&&r| r > 100_000.0).count();
+        let want = late(&truth.iter().map(|m| m.0).collect::<Vec<_>>());
+        let got = late(&marks.iter().map(|m| m.rise).collect::<Vec<_>>());
+        assert!(want > 500, "{want}");
+        assert!(got >= want * 9 / 10, "{got} of {want} chatter marks seen");
+        let early = marks.iter().filter(|m| m.rise < 20_000.0).count();
+        let early_truth = truth.iter().filter(|m| m.0 < 20_000.0).count();
+        assert!(
+            early >= early_truth * 8 / 10,
+            "{early} of {early_truth} at the start"
+        );
     }
 
     #[test]

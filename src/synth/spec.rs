@@ -81,6 +81,12 @@ pub struct ChannelSpec {
     /// Envelope outputs: a superregenerative receiver's idle chatter in the silences between
     /// presses (random marks and spaces at full level, widths log-uniform in 30 µs–1.5 ms),
     /// stopping [`CHATTER_GUARD_MS`] before each press and resuming as long after it.
+    ///
+    /// Model choices (common practice): with no carrier the receiver's data slicer turns its
+    /// own noise into pulses at the same full level as a press's marks, on about half the
+    /// time, with widths spread over a wide range; a press is captured cleanly, so its repeats
+    /// carry no chatter. Level and silence therefore cannot tell chatter from a code; only
+    /// the regularity of the widths can.
     pub chatter: bool,
 }
 

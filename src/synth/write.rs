@@ -114,7 +114,9 @@ struct PressPlan {
 }
 
 /// Superregenerative idle chatter: random marks and spaces, widths log-uniform in
-/// 30 µs–1.5 ms, filling every silence but a guard of [`CHATTER_GUARD_MS`] around presses.
+/// 30 µs–1.5 ms (a spread of 50, about half the time on), full level like a press's marks,
+/// filling every silence but a guard of [`CHATTER_GUARD_MS`] around presses (model choices:
+/// common practice, see [`ChannelSpec::chatter`](super::spec::ChannelSpec::chatter)).
 fn add_chatter(presses: &[PressPlan], duration: f64, rng: &mut Rng, marks: &mut Vec<TxMark>) {
     let guard = CHATTER_GUARD_MS * 1e-3;
     let mut quiet: Vec<(f64, f64)> = Vec::new();
