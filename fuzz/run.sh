@@ -3,6 +3,8 @@
 #
 #   fuzz/run.sh [RUNS] [TARGET...]      # default: 10000000 runs of each target
 #   FUZZ_SECONDS=3600 fuzz/run.sh ...   # stop each target after an hour if RUNS is not reached
+#   FUZZ_TIMEOUT=60 fuzz/run.sh ...     # per-input timeout (default 10 s; libFuzzer's clock is
+#                                       # wall time, so raise it on a loaded machine)
 #
 # Needs a nightly toolchain and cargo-fuzz (`cargo install cargo-fuzz`). Builds without a
 # sanitizer (the code is safe Rust; a sanitizer halves the speed) but with debug assertions and
@@ -28,7 +30,7 @@ for t in "${targets[@]}"; do
     echo "== $t: $runs runs, max_len $max_len, started $(date -u +%FT%TZ)"
     start=$(date +%s)
     cargo +nightly fuzz run -s none "${trace[@]}" "$t" "corpus/$t" "seeds/$t" -- \
-        -runs="$runs" -max_len="$max_len" -timeout=10 -rss_limit_mb=2048 -print_final_stats=1 \
+        -runs="$runs" -max_len="$max_len" -timeout="${FUZZ_TIMEOUT:-10}" -rss_limit_mb=2048 -print_final_stats=1 \
         -max_total_time="${FUZZ_SECONDS:-0}"
     echo "== $t: done in $(( $(date +%s) - start )) s"
 done
