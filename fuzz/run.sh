@@ -7,7 +7,7 @@
 #                                       # wall time, so raise it on a loaded machine)
 #
 # Needs a nightly toolchain and cargo-fuzz (`cargo install cargo-fuzz`). Builds without a
-# sanitizer (the code is safe Rust; a sanitizer halves the speed) but with debug assertions and
+# sanitizer (safe Rust apart from bounds-checked AVX2 kernels; a sanitizer halves the speed) but with debug assertions and
 # overflow checks, so an integer overflow is a crash too. Corpora grow in fuzz/corpus/TARGET
 # (not committed) from the committed seeds in fuzz/seeds/TARGET; a crash lands in
 # fuzz/artifacts/TARGET/ — keep it under tests/fuzz-crashes/TARGET/ once fixed, where

@@ -467,12 +467,12 @@ pub struct Reading {
 
 impl Reading {
     /// How well the reading lies on `llr`: the mean llr under its marks and minus the mean
-    /// under its spaces (inside its frames and between them), the smaller of the two, as a
-    /// fraction of `half` (half the difference between the carrier and idle levels the llr
-    /// was made from). About 1 when every mark and space lies where the carrier does; a plan
-    /// that does not match the code straddles marks and spaces and fits neither, and a
-    /// reading that skips marks (short frames with the rest of the code in their gaps) leaves
-    /// carrier in its spaces.
+    /// under the spaces inside its frames, the smaller of the two, as a fraction of `half`
+    /// (half the difference between the carrier and idle levels the llr was made from). About
+    /// 1 when every mark and space lies where the carrier does; a plan that does not match the
+    /// code straddles marks and spaces and fits neither. (Gaps between frames are not
+    /// counted: a header the plan lacks lies there, and counting them rejected right PPM
+    /// readings — wrong codes at 12 dB rose from 30 to 35 of 200 in the sensitivity sweep.)
     pub fn fit(&self, llr: &[f32], half: f64) -> f64 {
         let sum = |a: usize, b: usize| -> (f64, usize) {
             let (a, b) = (a.min(llr.len()), b.min(llr.len()));
@@ -480,16 +480,13 @@ impl Reading {
             (llr[a..b].iter().map(|&v| v as f64).sum(), b - a)
         };
         let (mut on, mut n_on, mut off, mut n_off) = (0.0f64, 0usize, 0.0f64, 0usize);
-        let Some(last_frame) = self.frames.last() else {
-            return 0.0;
-        };
         for f in &self.frames {
             for k in f.first_mark..=f.last_mark.min(self.marks.len().saturating_sub(1)) {
                 let (x, y) = (self.marks[k].0 as usize, self.marks[k].1 as usize);
                 let (s, n) = sum(x, y);
                 on += s;
                 n_on += n;
-                if k < f.last_mark || (k == f.last_mark && !std::ptr::eq(f, last_frame)) {
+                if k < f.last_mark {
                     if let Some(next) = self.marks.get(k + 1) {
                         let (s, n) = sum(y, next.0 as usize);
                         off += s;
@@ -811,31 +808,6 @@ mod tests {
         // Without the fit, the exact search at the 20 % unit does not.
         let off = segment_frames(&llr, &pwm_plan(16.0 * 1.2), Some(bits.len()));
         assert!(off.frames.iter().filter(|f| f.bits == bits).count() < 3);
-    }
-
-    #[test]
-    fn a_reading_that_skips_marks_does_not_fit() {
-        let bits = [true, false, true, true, false, false, true, false];
-        let env = pwm_env(&bits, 16, 3, 0.1, 17);
-        let llr: Vec<f32> = env.iter().map(|x| x - 0.5).collect();
-        let right = segment_frames(&llr, &pwm_plan(16.0), Some(8));
-        assert_eq!(right.frames.len(), 3);
-        assert!(right.fit(&llr, 0.5) > 0.9, "{}", right.fit(&llr, 0.5));
-        // Each frame's first four marks as a frame of its own; the other five marks of the
-        // code lie in the gaps.
-        let mut short = Reading::default();
-        for f in &right.frames {
-            let first = short.marks.len();
-            short
-                .marks
-                .extend_from_slice(&right.marks[f.first_mark..f.first_mark + 4]);
-            short.frames.push(FrameSpan {
-                first_mark: first,
-                last_mark: first + 3,
-                bits: f.bits[..4].to_vec(),
-            });
-        }
-        assert!(short.fit(&llr, 0.5) < 0.8, "{}", short.fit(&llr, 0.5));
     }
 
     #[test]
