@@ -395,12 +395,7 @@ pub fn trim_misfits(marks: &mut Vec<Mark>) -> usize {
     };
     let mw = sorted(marks.iter().map(Mark::width).collect());
     let sw = sorted(marks.windows(2).map(|p| p[1].rise - p[0].fall).collect());
-    // Elements within the ratio of `x`, itself included.
-    let near = |v: &[f64], x: f64| {
-        let lo = v.partition_point(|&y| y < x / GROUP_RATIO);
-        let hi = v.partition_point(|&y| y <= x * GROUP_RATIO);
-        hi - lo
-    };
+    let near = count_near;
     let fit_mark = |i: usize| near(&mw, marks[i].width()) >= 3;
     let fit_space = |i: usize| near(&sw, marks[i + 1].rise - marks[i].fall) >= 3;
     // Marks i..i+FIT_RUN all fit, as do the spaces between them.
@@ -415,6 +410,14 @@ pub fn trim_misfits(marks: &mut Vec<Mark>) -> usize {
     marks.truncate(last + 1);
     marks.drain(..first);
     n - marks.len()
+}
+
+/// Elements of `sorted` within [`GROUP_RATIO`] of `x`, itself included. A negative width
+/// (overlapping marks) has its bounds the wrong way round and counts none.
+fn count_near(sorted: &[f64], x: f64) -> usize {
+    let lo = sorted.partition_point(|&y| y < x / GROUP_RATIO);
+    let hi = sorted.partition_point(|&y| y <= x * GROUP_RATIO);
+    hi.saturating_sub(lo)
 }
 
 /// Marks far weaker than the burst's strong marks are noise (false alarms in the silences
@@ -967,6 +970,21 @@ mod tests {
         // Too short to judge: untouched.
         let mut few = code[..4].to_vec();
         assert_eq!(trim_misfits(&mut few), 0);
+    }
+
+    /// Fuzz regression (decode_chain, kept in tests/fuzz-crashes): overlapping marks make
+    /// negative spaces, whose neighbourhood bounds come out reversed — an overflow panic.
+    #[test]
+    fn overlapping_marks_do_not_panic_the_trim() {
+        // The fuzz build panicked; a release build wrapped to a count near usize::MAX.
+        assert_eq!(count_near(&[-2.0, 1.0], -2.0), 0);
+        assert_eq!(count_near(&[1.0, 2.0, 2.1, 9.0], 2.0), 2);
+        let mut marks: Vec<Mark> = (0..8).map(|i| mark(i as f64 * 15.0, 1.0)).collect();
+        marks[3].fall = marks[5].rise + 20.0;
+        marks[6].rise = marks[5].fall - 30.0;
+        let n = marks.len();
+        let dropped = trim_misfits(&mut marks);
+        assert_eq!(dropped + marks.len(), n);
     }
 
     #[test]

@@ -1,7 +1,8 @@
-//! Replays every input the fuzzers ever crashed on (`tests/fuzz-crashes/TARGET/`: one so far,
+//! Replays every input the fuzzers ever crashed on (`tests/fuzz-crashes/TARGET/`: two so far —
 //! a 131-byte capture at a 10¹² Hz rate that made a 960 MB averaging ring in the envelope
-//! restorer — libFuzzer's out-of-memory report; the bound itself is unit-tested in
-//! `front::baseline`), the malformed-capture corpus and the fuzz seeds (`fuzz/seeds/TARGET/`) through the
+//! restorer, libFuzzer's out-of-memory report, bound unit-tested in `front::baseline`; and
+//! overlapping marks whose negative space overflowed a count in `bursts::trim_misfits`,
+//! unit-tested there), the malformed-capture corpus and the fuzz seeds (`fuzz/seeds/TARGET/`) through the
 //! same harness the libFuzzer targets use (`fuzz/harness.rs`), in an ordinary `cargo test`.
 //! An input that panics fails here. (`cargo test --release` has no overflow checks; the
 //! fuzz builds do, so replay an overflow crash with plain `cargo test` too.)
