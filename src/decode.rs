@@ -608,7 +608,8 @@ impl Decoder {
                 &opts,
             )
         };
-        // Frame lengths to search: the edge readings' and the free search's modal length.
+        // The free search at the fitted unit: its fit gates the exact searches, its modal
+        // length is one of theirs.
         let free = crate::trellis::segment(llr, &env_plan);
         let free_fit = free.fit(llr, 0.5 * (win.carrier - idle));
         if std::env::var_os("OOKSIFT_DEBUG").is_some() {
@@ -624,6 +625,7 @@ impl Decoder {
         if free.frames.len() < 2 || free_fit < MIN_FREE_FIT {
             return None;
         }
+        // Frame lengths to search: the edge readings' and the free search's modal length.
         let mut lengths: Vec<usize> = known_bits.into_iter().collect();
         if let Some(n) = free.modal_bits() {
             if !lengths.contains(&n) {
