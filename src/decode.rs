@@ -103,6 +103,8 @@ pub struct Decoder {
     /// `margin` samples when none is open). `hist[0]` is envelope sample `hist_start`.
     hist: History<f32>,
     lag_hist: History<Complex32>,
+    /// A channel's complex outputs beside `hist` (empty for the whole band).
+    iq_hist: History<Complex32>,
     hist_start: u64,
     margin: usize,
     max_hist: usize,
@@ -170,6 +172,7 @@ impl Decoder {
             presses: Vec::new(),
             hist: History::default(),
             lag_hist: History::default(),
+            iq_hist: History::default(),
             hist_start: 0,
             margin: (env_rate * 0.025) as usize + 16,
             max_hist: (env_rate * 4.0) as usize + 4096,
@@ -198,6 +201,7 @@ impl Decoder {
             .process(&self.env_block.env, &self.env_block.lag, &mut self.marks);
         self.hist.extend_from_slice(&self.env_block.env);
         self.lag_hist.extend_from_slice(&self.env_block.lag);
+        self.iq_hist.extend_from_slice(&self.env_block.iq);
         self.route_marks();
         if !self.edges.in_mark() {
             let now = self.env.position_of(self.edges.position() as f64);
@@ -227,6 +231,8 @@ impl Decoder {
             self.hist.drop_front(n);
             let nl = n.min(self.lag_hist.len());
             self.lag_hist.drop_front(nl);
+            let ni = n.min(self.iq_hist.len());
+            self.iq_hist.drop_front(ni);
             self.hist_start += n as u64;
         }
     }
@@ -457,20 +463,41 @@ impl Decoder {
             return None;
         }
         let env = &self.hist[lo..hi];
-        let (idle, carrier, spread) = two_levels(env, (first_unit / 2.0).floor() as usize)?;
-        let mid = (idle + 0.5 * (carrier - idle)) as f32;
-        let llr: Vec<f32> = env.iter().map(|&x| x - mid).collect();
+        let level_half = (first_unit / 2.0).floor() as usize;
+        let (idle, carrier, spread) = two_levels(env, level_half)?;
+        // The search reads the burst integrated coherently over most of a unit when the
+        // channel's samples are at hand (a narrower look than the channel's own envelope,
+        // module `front::coherent`), else the envelope itself.
+        let look = self.coherent_look(lo, hi, first_unit);
+        let (look_idle, look_carrier) = match &look {
+            Some(m) => {
+                let (i, c, _) = two_levels(m, level_half)?;
+                (i, c)
+            }
+            None => (idle, carrier),
+        };
+        let mid = (look_idle + 0.5 * (look_carrier - look_idle)) as f32;
+        let llr: Vec<f32> = look
+            .as_deref()
+            .unwrap_or(env)
+            .iter()
+            .map(|&x| x - mid)
+            .collect();
         if std::env::var_os("OOKSIFT_DEBUG").is_some() {
-            eprintln!("  trellis levels idle {idle:.4} carrier {carrier:.4} spread {spread:.4}");
+            eprintln!(
+                "  trellis levels idle {idle:.4} carrier {carrier:.4} spread {spread:.4}; searched {} idle {look_idle:.4} carrier {look_carrier:.4}",
+                if look.is_some() { "coherent" } else { "envelope" }
+            );
         }
+        let half = 0.5 * (look_carrier - look_idle);
         let win = TrellisWindow {
             a,
             lo,
             hi,
             env,
             llr: &llr,
+            half,
             idle,
-            carrier,
             spread,
         };
         // Every plan scored once by its free search; the likeliest few get their unit fitted
@@ -493,7 +520,7 @@ impl Decoder {
                             plan.unit,
                             free.score,
                             free.frames.len(),
-                            free.fit(&llr, 0.5 * (carrier - idle))
+                            free.fit(&llr, half)
                         );
                     }
                     (free.score, plan, reading)
@@ -539,6 +566,32 @@ impl Decoder {
             };
         }
         best.map(|b| b.1)
+    }
+
+    /// The channel's samples `lo..hi` of the history integrated coherently over
+    /// [`COHERENT_UNITS`] of a `unit` (envelope samples), aligned with the envelope; `None`
+    /// for the whole band, or when the history holds no channel samples there.
+    fn coherent_look(&self, lo: usize, hi: usize, unit: f64) -> Option<Vec<f32>> {
+        let Front::Channel(ch) = &self.env else {
+            return None;
+        };
+        if std::env::var_os("OOKSIFT_NO_COHERENT").is_some()
+            || self.iq_hist.len() < hi
+            || unit.is_nan()
+            || unit < 2.0
+        {
+            return None;
+        }
+        let len = (COHERENT_UNITS * unit).round().max(1.0) as usize;
+        let segment = (COHERENT_SEGMENT_UNITS * unit).round() as usize;
+        Some(crate::front::coherent::coherent_envelope(
+            &self.iq_hist[lo..hi],
+            ch.plan().out_rate_hz,
+            len,
+            ch.plan().bandwidth_hz,
+            segment,
+            ch.smoothing_delay(),
+        ))
     }
 
     /// One trellis search of `burst` under `plan` (capture samples) in the window `win`.
@@ -611,7 +664,7 @@ impl Decoder {
         // The free search at the fitted unit: its fit gates the exact searches, its modal
         // length is one of theirs.
         let free = crate::trellis::segment(llr, &env_plan);
-        let free_fit = free.fit(llr, 0.5 * (win.carrier - idle));
+        let free_fit = free.fit(llr, win.half);
         if std::env::var_os("OOKSIFT_DEBUG").is_some() {
             eprintln!(
                 "  trellis free {line_code} unit {:.1}: {} frames, fit {free_fit:.2}",
@@ -650,7 +703,7 @@ impl Decoder {
             if best.as_ref().is_some_and(|b| b.0 >= r.score) {
                 continue;
             }
-            let fit = r.fit(llr, 0.5 * (win.carrier - idle));
+            let fit = r.fit(llr, win.half);
             if std::env::var_os("OOKSIFT_DEBUG").is_some() {
                 eprintln!("    fit {fit:.2}");
             }
@@ -904,8 +957,10 @@ struct TrellisWindow<'a> {
     hi: usize,
     env: &'a [f32],
     llr: &'a [f32],
+    /// Half the step between the carrier and idle levels of what `llr` was made from.
+    half: f64,
+    /// Idle level and spread of `env`.
     idle: f64,
-    carrier: f64,
     spread: f64,
 }
 
@@ -960,6 +1015,10 @@ pub const SURVEY_FULL_SECONDS: f64 = 4.0;
 
 /// Plans (the likeliest by their free search) that get the exact-length searches.
 const TRELLIS_EXACT_PLANS: usize = 3;
+/// Length of the coherent integration the trellis reads a channel's burst through, in units.
+const COHERENT_UNITS: f64 = 0.5;
+/// Segments of a burst that each pick their own carrier offset for it, in units.
+const COHERENT_SEGMENT_UNITS: f64 = 24.0;
 
 /// Lowest fit of a trellis reading: the mean log-likelihood ratio under its marks, and minus
 /// that under the spaces inside its frames, as a fraction of half the level difference (1 for

@@ -19,6 +19,10 @@ pub struct EnvelopeBlock {
     pub env: Vec<f32>,
     /// Lag-1 products summed over each output sample's inputs (empty for envelope captures).
     pub lag: Vec<Complex32>,
+    /// A channel's complex outputs, one per envelope sample before the moving average's delay
+    /// (empty for the whole band): [`super::coherent`] integrates them again once a burst's
+    /// unit is known.
+    pub iq: Vec<Complex32>,
 }
 
 impl EnvelopeBlock {
@@ -26,6 +30,7 @@ impl EnvelopeBlock {
     pub fn clear(&mut self) {
         self.env.clear();
         self.lag.clear();
+        self.iq.clear();
     }
 }
 
@@ -172,6 +177,12 @@ impl ChannelEnvelope {
         self.iq.clear();
         self.ch.process_iq(block, &mut self.iq);
         self.smoother.push_iq(&self.iq, &mut self.prev, out);
+        out.iq.extend_from_slice(&self.iq);
+    }
+
+    /// Delay of the envelope behind the channel's outputs, in samples.
+    pub fn smoothing_delay(&self) -> f64 {
+        self.smoother.delay()
     }
 }
 

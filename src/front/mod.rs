@@ -53,6 +53,7 @@
 
 pub mod baseline;
 pub mod channel;
+pub mod coherent;
 pub mod envelope;
 mod fir;
 pub mod spectrum;
