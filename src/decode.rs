@@ -869,10 +869,12 @@ impl Decoder {
     }
 }
 
-/// A sample history that drops from the front in amortised constant time: dropped samples
-/// are only skipped, and the live ones move to the front of the buffer once the skipped
-/// part is at least as long as they are (dropping with `Vec::drain` moved the whole live
-/// history on every block). Reads see the live samples as a slice.
+/// A sample history that drops from the front in amortised constant time, in little more
+/// memory than its live samples: dropped samples are only skipped, and the live ones move to
+/// the front of the buffer when a new block would not fit (dropping with `Vec::drain` moved
+/// the whole live history on every block). The buffer grows by an eighth at a time, not by
+/// doubling: a history held at its 4 s cap was twice its live size (16 MB per channel, the
+/// larger part of `decode`'s peak memory). Reads see the live samples as a slice.
 #[derive(Debug, Clone)]
 struct History<T> {
     buf: Vec<T>,
@@ -891,16 +893,33 @@ impl<T> Default for History<T> {
 
 impl<T: Copy> History<T> {
     fn extend_from_slice(&mut self, v: &[T]) {
+        if self.buf.len() + v.len() > self.buf.capacity() {
+            if self.skip > 0 {
+                self.buf.drain(..self.skip);
+                self.skip = 0;
+            }
+            let need = self.buf.len() + v.len();
+            if need > self.buf.capacity() {
+                let grow = (need - self.buf.len()).max(need / 8).max(4096);
+                self.buf.reserve_exact(grow);
+            }
+        }
         self.buf.extend_from_slice(v);
     }
 
     /// Drops the `n` oldest live samples (all of them when fewer are held).
     fn drop_front(&mut self, n: usize) {
-        self.skip = (self.skip + n).min(self.buf.len());
-        if self.skip >= 4096 && self.skip >= self.buf.len() - self.skip {
-            self.buf.drain(..self.skip);
+        self.skip = self.skip.saturating_add(n).min(self.buf.len());
+        if self.skip == self.buf.len() {
+            self.buf.clear();
             self.skip = 0;
         }
+    }
+
+    /// Bytes the buffer holds (live, skipped and spare).
+    #[cfg(test)]
+    fn capacity_bytes(&self) -> usize {
+        self.buf.capacity() * std::mem::size_of::<T>()
     }
 }
 
@@ -1271,4 +1290,38 @@ pub fn merge_reports(mut reports: Vec<DecodeReport>) -> DecodeReport {
     out.codes
         .sort_by(|a, b| a.first_start_s.total_cmp(&b.first_start_s));
     out
+}
+
+#[cfg(test)]
+mod history_tests {
+    use super::History;
+
+    #[test]
+    fn a_history_at_its_cap_keeps_its_samples_in_little_more_than_their_size() {
+        // Blocks of 1 000 samples, the oldest dropped beyond 100 000 live ones, for 2 000
+        // blocks: every live sample reads back, and the buffer stays within 1.25 × the live
+        // size (doubling growth left it at up to 2 ×).
+        let mut h: History<u64> = History::default();
+        let (mut start, mut next) = (0u64, 0u64);
+        for _ in 0..2_000 {
+            let block: Vec<u64> = (next..next + 1_000).collect();
+            next += 1_000;
+            h.extend_from_slice(&block);
+            let live = (next - start) as usize;
+            if live > 100_000 {
+                h.drop_front(live - 100_000);
+                start = next - 100_000;
+            }
+            assert_eq!(h.len(), (next - start) as usize);
+            assert_eq!(h[0], start);
+            assert_eq!(h[h.len() - 1], next - 1);
+        }
+        assert!(
+            h.capacity_bytes() <= 125_000 * 8,
+            "capacity {} bytes for 100 000 live samples",
+            h.capacity_bytes()
+        );
+        h.drop_front(usize::MAX);
+        assert_eq!(h.len(), 0);
+    }
 }
