@@ -502,7 +502,7 @@ impl Decoder {
         };
         // Every plan scored once by its free search; the likeliest few get their unit fitted
         // and the exact-length searches (the costly part).
-        let mut ranked: Vec<(f64, crate::trellis::Plan, &crate::trellis::PlanReading)> = plans
+        let mut ranked: Vec<(f64, crate::trellis::Plan, &crate::trellis::PlanReading, bool)> = plans
             .iter()
             .filter_map(|reading| {
                 let unit = reading.plan.unit / decim;
@@ -523,12 +523,20 @@ impl Decoder {
                             free.fit(&llr, half)
                         );
                     }
-                    (free.score, plan, reading)
+                    // A plan whose coarse reading holds no repeat, or lies far off the
+                    // envelope, is not worth fitting (nine fine searches).
+                    let promising =
+                        free.frames.len() >= 2 && free.fit(&llr, half) >= MIN_COARSE_FIT;
+                    (free.score, plan, reading, promising)
                 })
             })
             .collect();
         ranked.sort_by(|x, y| y.0.total_cmp(&x.0));
         ranked.truncate(TRELLIS_EXACT_PLANS);
+        let ranked = ranked
+            .into_iter()
+            .filter(|r| r.3 || std::env::var_os("OOKSIFT_NO_GATE").is_some())
+            .map(|r| (r.0, r.1, r.2));
         let fitted: Vec<(crate::trellis::Plan, &crate::trellis::PlanReading)> = ranked
             .into_iter()
             .map(|(_, plan, reading)| {
@@ -1047,6 +1055,10 @@ const MIN_TRELLIS_FIT: f64 = 0.9;
 /// fits of one plan differed by at most 0.11 on 24 captures at 10 and 12 dB; right plans'
 /// free fits were 0.91–1.02.
 const MIN_FREE_FIT: f64 = 0.8;
+/// Lowest fit of a plan's coarse free reading (at its unread unit, on the quarter-unit grid)
+/// for the plan to have its unit fitted: below it, the fitted reading would not reach
+/// [`MIN_FREE_FIT`] either (measured: the sweep's counts unchanged at 0.5).
+const MIN_COARSE_FIT: f64 = 0.5;
 
 /// Smoothing widths (µs) the trellis stage reads timing plans from, besides the first and
 /// second passes' marks.
