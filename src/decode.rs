@@ -465,7 +465,7 @@ impl Decoder {
         let env = &self.hist[lo..hi];
         let level_half = (first_unit / 2.0).floor() as usize;
         let (idle, carrier, spread) = two_levels(env, level_half)?;
-        // The search reads the burst integrated coherently over most of a unit when the
+        // The search reads the burst integrated coherently over half a unit when the
         // channel's samples are at hand (a narrower look than the channel's own envelope,
         // module `front::coherent`), else the envelope itself.
         let look = self.coherent_look(lo, hi, first_unit);
@@ -512,21 +512,20 @@ impl Decoder {
                         ..reading.plan.clone()
                     };
                     let free = crate::trellis::segment_coarse(&llr, &plan);
+                    let fit = free.fit(&llr, half);
                     if std::env::var_os("OOKSIFT_DEBUG").is_some() {
                         eprintln!(
-                            "  trellis plan {} ({:.2}) unit {:.1}: score {:.1}, {} frames, fit {:.2}",
+                            "  trellis plan {} ({:.2}) unit {:.1}: score {:.1}, {} frames, fit {fit:.2}",
                             reading.line_code,
                             reading.score,
                             plan.unit,
                             free.score,
                             free.frames.len(),
-                            free.fit(&llr, half)
                         );
                     }
                     // A plan whose coarse reading holds no repeat, or lies far off the
                     // envelope, is not worth fitting (nine fine searches).
-                    let promising =
-                        free.frames.len() >= 2 && free.fit(&llr, half) >= MIN_COARSE_FIT;
+                    let promising = free.frames.len() >= 2 && fit >= MIN_COARSE_FIT;
                     (free.score, plan, reading, promising)
                 })
             })
