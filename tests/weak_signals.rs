@@ -7,6 +7,30 @@ mod common;
 
 use common::{decode_json, synth};
 
+/// Writes one seeded press of `press` at `snr_db` (2.048 MHz `cu8`) to `out`; returns its
+/// truth file.
+fn weak_press(out: &std::path::Path, press: &str, snr_db: &str, seed: &str) -> serde_json::Value {
+    synth(
+        out,
+        &[
+            "--rate",
+            "2048000",
+            "--amplitude",
+            "0.25",
+            "--snr-db",
+            snr_db,
+            "--seed",
+            seed,
+            "--lead-ms",
+            "40",
+            "--tail-ms",
+            "40",
+            "--press",
+            press,
+        ],
+    )
+}
+
 /// Decodes `trials` presses of `press` at `snr_db`; returns (exact, wrong codes).
 fn sweep(press: &str, snr_db: &str, trials: u64) -> (usize, usize) {
     let d = tempfile::tempdir().expect("tempdir");
@@ -14,25 +38,7 @@ fn sweep(press: &str, snr_db: &str, trials: u64) -> (usize, usize) {
     for seed in 1..=trials {
         let out = d.path().join(format!("weak{seed}.cu8"));
         let seed = seed.to_string();
-        let truth = synth(
-            &out,
-            &[
-                "--rate",
-                "2048000",
-                "--amplitude",
-                "0.25",
-                "--snr-db",
-                snr_db,
-                "--seed",
-                &seed,
-                "--lead-ms",
-                "40",
-                "--tail-ms",
-                "40",
-                "--press",
-                press,
-            ],
-        );
+        let truth = weak_press(&out, press, snr_db, &seed);
         let want = truth["codes"][0]["bits"]
             .as_str()
             .expect("truth bits")
@@ -81,25 +87,7 @@ fn credited(press: &str, snr_db: &str, trials: u64, env: &[(&str, &str)]) -> u64
     for seed in 1..=trials {
         let out = d.path().join(format!("weak{seed}.cu8"));
         let seed = seed.to_string();
-        let truth = synth(
-            &out,
-            &[
-                "--rate",
-                "2048000",
-                "--amplitude",
-                "0.25",
-                "--snr-db",
-                snr_db,
-                "--seed",
-                &seed,
-                "--lead-ms",
-                "40",
-                "--tail-ms",
-                "40",
-                "--press",
-                press,
-            ],
-        );
+        let truth = weak_press(&out, press, snr_db, &seed);
         let want = truth["codes"][0]["bits"].as_str().expect("truth bits");
         let mut cmd = common::bin();
         cmd.args([
