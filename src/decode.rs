@@ -876,8 +876,8 @@ impl Decoder {
     }
 }
 
-/// A sample history that drops from the front in amortised constant time, in little more
-/// memory than twice its live samples: dropped samples are only skipped, and the live ones
+/// A sample history that drops from the front in amortised constant time, in no more than
+/// twice the memory of its live samples: dropped samples are only skipped, and the live ones
 /// move to the front of the buffer when a new block would not fit (dropping with
 /// `Vec::drain` moved the whole live history on every block); only then does the buffer
 /// grow, to twice what it must hold. (Compacting only once half the buffer was skipped let
@@ -1310,7 +1310,7 @@ mod history_tests {
     use super::History;
 
     #[test]
-    fn a_history_at_its_cap_keeps_its_samples_in_little_more_than_their_size() {
+    fn a_history_at_its_cap_stays_within_twice_its_live_samples() {
         // Blocks of 1 000 samples, the oldest dropped beyond 100 000 live ones, for 2 000
         // blocks: every live sample reads back, and the buffer stays within twice the live
         // size plus a block (compacting at half skipped let it reach four times).
