@@ -668,6 +668,19 @@ unsafe fn dot2_wide(a: &[f32], b: &[f32], x: &[f32]) -> (f32, f32) {
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
 unsafe fn dot2_avx2(a: &[f32], b: &[f32], x: &[f32]) -> (f32, f32) {
+    let (sa, sb, _) = dot2_lanes(a, b, x);
+    (reduce_avx2(sa), reduce_avx2(sb))
+}
+
+/// (a·x, b·x) over the longest whole number of vectors all three slices hold, kept in
+/// [`LANES`] lanes, and that length: the loop both kernels above share.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn dot2_lanes(
+    a: &[f32],
+    b: &[f32],
+    x: &[f32],
+) -> (std::arch::x86_64::__m256, std::arch::x86_64::__m256, usize) {
     use std::arch::x86_64::*;
     let n = x.len().min(a.len()).min(b.len()) / LANES * LANES;
     let (mut sa, mut sb) = (_mm256_setzero_ps(), _mm256_setzero_ps());
@@ -685,7 +698,7 @@ unsafe fn dot2_avx2(a: &[f32], b: &[f32], x: &[f32]) -> (f32, f32) {
         sb = _mm256_add_ps(sb, _mm256_mul_ps(bv, xv));
         i += LANES;
     }
-    (reduce_avx2(sa), reduce_avx2(sb))
+    (sa, sb, n)
 }
 
 /// ([`dot_ragged`]`(h, re)`, [`dot_ragged`]`(h, im)`) on 256-bit vectors, bit-identical (same
@@ -711,22 +724,8 @@ unsafe fn fir2_wide(h: &[f32], re: &[f32], im: &[f32]) -> (f32, f32) {
 unsafe fn fir2_avx2(h: &[f32], re: &[f32], im: &[f32]) -> (f32, f32) {
     use std::arch::x86_64::*;
     let len = h.len().min(re.len()).min(im.len());
-    let full = len - len % LANES;
-    let (mut sr, mut si) = (_mm256_setzero_ps(), _mm256_setzero_ps());
-    let mut i = 0;
-    while i < full {
-        // SAFETY: i + LANES <= full <= each slice's length.
-        let (hv, rv, iv) = unsafe {
-            (
-                _mm256_loadu_ps(h.as_ptr().add(i)),
-                _mm256_loadu_ps(re.as_ptr().add(i)),
-                _mm256_loadu_ps(im.as_ptr().add(i)),
-            )
-        };
-        sr = _mm256_add_ps(sr, _mm256_mul_ps(hv, rv));
-        si = _mm256_add_ps(si, _mm256_mul_ps(hv, iv));
-        i += LANES;
-    }
+    // Products commute exactly, so re·h lane by lane is h·re bit for bit.
+    let (sr, si, full) = dot2_lanes(re, im, h);
     let (mut ar, mut ai) = ([0f32; LANES], [0f32; LANES]);
     // SAFETY: each array holds exactly one vector of LANES f32.
     unsafe {
@@ -804,6 +803,38 @@ fn reduce(a: &[f32; LANES]) -> f32 {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    #[cfg(target_arch = "x86_64")]
+    fn the_avx2_kernels_match_the_portable_ones_bit_for_bit() {
+        // Reference: the portable lane-by-lane sums (`dot`, `dot_ragged`) the AVX2 kernels
+        // promise to reproduce exactly. Needs a CPU with AVX2 (this project's machines have it).
+        assert!(has_avx2(), "this test needs AVX2");
+        let mut rng = crate::rng::Rng::new(11);
+        for len in 0..60 {
+            let v = |rng: &mut crate::rng::Rng| -> Vec<f32> {
+                (0..len).map(|_| rng.gauss() as f32).collect()
+            };
+            let (a, b, x) = (v(&mut rng), v(&mut rng), v(&mut rng));
+            // SAFETY: AVX2 checked above.
+            let (p, q) = unsafe { dot2_avx2(&a, &b, &x) };
+            let whole = len / LANES * LANES;
+            assert_eq!(
+                p.to_bits(),
+                dot(&a[..whole], &x[..whole]).to_bits(),
+                "len {len}"
+            );
+            assert_eq!(
+                q.to_bits(),
+                dot(&b[..whole], &x[..whole]).to_bits(),
+                "len {len}"
+            );
+            // SAFETY: as above.
+            let (r, i) = unsafe { fir2_avx2(&x, &a, &b) };
+            assert_eq!(r.to_bits(), dot_ragged(&x, &a).to_bits(), "len {len}");
+            assert_eq!(i.to_bits(), dot_ragged(&x, &b).to_bits(), "len {len}");
+        }
+    }
     use crate::front::testsig::{tone, Rng};
 
     const RATE: f64 = 2_048_000.0;
