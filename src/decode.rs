@@ -106,6 +106,13 @@ pub struct Decoder {
     /// A channel's complex outputs beside `hist` (empty for the whole band).
     iq_hist: History<Complex32>,
     hist_start: u64,
+    /// Capture position of the current segment's first sample: a squelched channel skips
+    /// quiet stretches ([`Decoder::skip`]) and starts its stages afresh after each.
+    base: u64,
+    /// Samples pushed since the segment began.
+    segment_samples: u64,
+    edge_cfg: EdgeConfig,
+    burst_cfg: BurstConfig,
     margin: usize,
     max_hist: usize,
     env_rate: f64,
@@ -165,7 +172,11 @@ impl Decoder {
             lag_rate_hz,
             carrier_base_hz,
             edges: EdgeDetector::new(EdgeConfig::for_rate(env_rate)),
-            bursts: BurstSplitter::new(bcfg),
+            bursts: BurstSplitter::new(bcfg.clone()),
+            edge_cfg: EdgeConfig::for_rate(env_rate),
+            burst_cfg: bcfg,
+            base: 0,
+            segment_samples: 0,
             env_block: EnvelopeBlock::default(),
             marks: Vec::new(),
             closed: Vec::new(),
@@ -189,6 +200,7 @@ impl Decoder {
     /// Feeds one block of samples.
     pub fn push(&mut self, block: Samples<'_>) {
         self.samples += block.len() as u64;
+        self.segment_samples += block.len() as u64;
         self.env_block.clear();
         self.env.process(block, &mut self.env_block);
         self.take_envelope();
@@ -204,16 +216,63 @@ impl Decoder {
         self.iq_hist.extend_from_slice(&self.env_block.iq);
         self.route_marks();
         if !self.edges.in_mark() {
-            let now = self.env.position_of(self.edges.position() as f64);
+            let now = self.pos_of(self.edges.position() as f64);
             self.bursts.idle_until(now, &mut self.closed);
         }
         self.decode_closed();
         self.trim_history();
     }
 
-    /// Envelope index of capture position `pos` (inverse of `WideEnvelope::position_of`).
+    /// Passes over `n` samples the caller knows hold nothing (the squelch of
+    /// [`decode_path`]): what the segment so far holds is read as at the end of a capture
+    /// (an open mark or burst closes and is decoded), and the next block pushed starts a new
+    /// segment at its true capture position, with the front, the edge detector and the
+    /// burst splitter started afresh. Presses and notes carry over; the report is the same
+    /// as if the quiet samples had been pushed, wherever they held no burst.
+    pub fn skip(&mut self, n: u64) {
+        if n == 0 {
+            return;
+        }
+        if self.segment_samples > 0 {
+            self.flush_front();
+            self.close_segment();
+            self.env.reset();
+            self.edges = EdgeDetector::new(self.edge_cfg.clone());
+            self.bursts = BurstSplitter::new(self.burst_cfg.clone());
+            self.hist.clear();
+            self.lag_hist.clear();
+            self.iq_hist.clear();
+            self.hist_start = 0;
+            self.segment_samples = 0;
+        }
+        self.samples += n;
+        self.base = self.samples;
+    }
+
+    /// Releases what the front still holds and runs it through the stages.
+    fn flush_front(&mut self) {
+        self.env_block.clear();
+        self.env.flush(&mut self.env_block);
+        self.take_envelope();
+    }
+
+    /// Closes the open mark and burst and decodes every closed burst.
+    fn close_segment(&mut self) {
+        self.marks.clear();
+        self.edges.finish(&mut self.marks);
+        self.route_marks();
+        self.bursts.finish(&mut self.closed);
+        self.decode_closed();
+    }
+
+    /// Capture position of envelope sample `k` of the current segment.
+    fn pos_of(&self, k: f64) -> f64 {
+        self.base as f64 + self.env.position_of(k)
+    }
+
+    /// Envelope index of capture position `pos` (inverse of [`Decoder::pos_of`]).
     fn env_index(&self, pos: f64) -> f64 {
-        self.env.index_of(pos)
+        self.env.index_of(pos - self.base as f64)
     }
 
     fn trim_history(&mut self) {
@@ -403,8 +462,8 @@ impl Decoder {
         let marks: Vec<Mark> = marks
             .into_iter()
             .map(|m| Mark {
-                rise: self.env.position_of(m.rise + a as f64),
-                fall: self.env.position_of(m.fall + a as f64),
+                rise: self.pos_of(m.rise + a as f64),
+                fall: self.pos_of(m.fall + a as f64),
                 ..m
             })
             .collect();
@@ -644,8 +703,8 @@ impl Decoder {
                         num_complex::Complex64::default()
                     };
                     Mark {
-                        rise: self.env.position_of(r + a as f64),
-                        fall: self.env.position_of(f + a as f64),
+                        rise: self.pos_of(r + a as f64),
+                        fall: self.pos_of(f + a as f64),
                         level: level as f32,
                         noise: spread as f32,
                         lag: lag_sum,
@@ -725,10 +784,11 @@ impl Decoder {
     }
 
     fn route_marks(&mut self) {
+        let base = self.base as f64;
         for m in self.marks.drain(..) {
             let mapped = Mark {
-                rise: self.env.position_of(m.rise),
-                fall: self.env.position_of(m.fall),
+                rise: base + self.env.position_of(m.rise),
+                fall: base + self.env.position_of(m.fall),
                 ..m
             };
             self.bursts.push(mapped, &mut self.closed);
@@ -825,9 +885,7 @@ impl Decoder {
 
     /// Flushes the stages at the end of the capture and builds the report.
     pub fn finish(mut self) -> DecodeReport {
-        self.env_block.clear();
-        self.env.flush(&mut self.env_block);
-        self.take_envelope();
+        self.flush_front();
         if let Front::Wide(w) = &self.env {
             if let Some(s) = w.restoration() {
                 if s.inverted {
@@ -842,11 +900,7 @@ impl Decoder {
                 }
             }
         }
-        self.marks.clear();
-        self.edges.finish(&mut self.marks);
-        self.route_marks();
-        self.bursts.finish(&mut self.closed);
-        self.decode_closed();
+        self.close_segment();
         let rate = self.info.rate;
         let (base, lag_rate) = (self.carrier_base_hz, self.lag_rate_hz);
         let mut codes: Vec<CodeReport> = frames::group(std::mem::take(&mut self.presses))
@@ -917,6 +971,11 @@ impl<T: Copy> History<T> {
     }
 
     /// Drops the `n` oldest live samples (all of them when fewer are held).
+    fn clear(&mut self) {
+        self.buf.clear();
+        self.skip = 0;
+    }
+
     fn drop_front(&mut self, n: usize) {
         self.skip = self.skip.saturating_add(n).min(self.buf.len());
         if self.skip == self.buf.len() {
@@ -1122,7 +1181,7 @@ pub fn decode_path(path: &str, opts: &DecodeOptions) -> Result<DecodeReport, Dec
             (p.0)(done, total);
         }
     };
-    let (survey, mean) = survey_with_mean_progress(src.as_mut(), &tick)?;
+    let (survey, mean, activity) = survey_with_mean_progress(src.as_mut(), &tick)?;
     let dc = if survey.dc_spike.is_some() {
         mean
     } else {
@@ -1151,20 +1210,183 @@ pub fn decode_path(path: &str, opts: &DecodeOptions) -> Result<DecodeReport, Dec
         );
         return Ok(r);
     }
-    let mut decoders: Vec<Decoder> = plans
+    let squelch = std::env::var_os("OOKSIFT_NO_SQUELCH").is_none();
+    let mut chains: Vec<(Decoder, Squelch)> = plans
         .into_iter()
-        .filter_map(|p| Decoder::for_channel(info.clone(), opts, p, dc).ok())
+        .filter_map(|p| {
+            let gate = match (&activity, squelch) {
+                (Some(a), true) => Squelch::for_channel(a, &p),
+                _ => Squelch::open(),
+            };
+            Decoder::for_channel(info.clone(), opts, p, dc)
+                .ok()
+                .map(|d| (d, gate))
+        })
         .collect();
-    let mut done = info.declared_samples.unwrap_or(0);
-    while let Some(block) = src.next_block()? {
-        done += block.len() as u64;
-        for d in &mut decoders {
-            d.push(block);
+    if std::env::var_os("OOKSIFT_DEBUG").is_some() {
+        for (d, g) in &chains {
+            eprintln!(
+                "squelch of channel {:?} Hz: {}",
+                d.carrier_base_hz,
+                g.describe(info.rate.hz(), survey.samples)
+            );
         }
+    }
+    let mut done = info.declared_samples.unwrap_or(0);
+    let mut pos = 0u64;
+    loop {
+        // No channel busy here: pass over the file up to the next busy span without
+        // converting it, where the source can.
+        let next = chains
+            .iter()
+            .map(|(_, g)| g.next_busy(pos))
+            .min()
+            .unwrap_or(pos);
+        if next > pos {
+            let want = next.min(survey.samples.max(pos + 1)) - pos;
+            if let Some(n) = src.skip_samples(want)? {
+                for (d, _) in &mut chains {
+                    d.skip(n);
+                }
+                pos += n;
+                done += n;
+                tick(done);
+                if n < want {
+                    break;
+                }
+                continue;
+            }
+        }
+        let Some(block) = src.next_block()? else {
+            break;
+        };
+        let len = block.len() as u64;
+        for (d, g) in &mut chains {
+            g.feed(d, block, pos);
+        }
+        pos += len;
+        done += len;
         tick(done);
     }
-    let reports: Vec<DecodeReport> = decoders.into_iter().map(Decoder::finish).collect();
+    let reports: Vec<DecodeReport> = chains.into_iter().map(|(d, _)| d.finish()).collect();
     Ok(merge_reports(reports))
+}
+
+/// Captures shorter than this are read whole by every channel: the squelch saves little
+/// there, and short captures keep one code path.
+pub const SQUELCH_MIN_SECONDS: f64 = 20.0;
+/// A channel reads this long before each busy span of its bands (the edge detector learns
+/// the noise in the first 20 ms; the decoder keeps 25 ms before a burst).
+pub const SQUELCH_BEFORE_S: f64 = 0.25;
+/// ... and this long after (a burst closes after at most a few of its longest spaces).
+pub const SQUELCH_AFTER_S: f64 = 1.0;
+/// Busy spans closer than this are read as one.
+pub const SQUELCH_JOIN_S: f64 = 2.0;
+/// A channel whose busy spans cover more than this share of the capture reads it whole.
+pub const SQUELCH_MAX_BUSY: f64 = 0.5;
+
+/// Which stretches of the capture one channel reads: the busy spans of the survey's
+/// activity log in the bands the channel covers, widened and joined ([`front::activity`]).
+/// Everything else is skipped (`Decoder::skip`); `None` reads everything.
+///
+/// [`front::activity`]: crate::front::activity
+#[derive(Debug, Clone)]
+struct Squelch {
+    spans: Option<Vec<(u64, u64)>>,
+    /// First span that may still matter (spans end after the position last asked about).
+    next: usize,
+}
+
+impl Squelch {
+    fn open() -> Squelch {
+        Squelch {
+            spans: None,
+            next: 0,
+        }
+    }
+
+    fn for_channel(activity: &crate::front::activity::Activity, plan: &ChannelPlan) -> Squelch {
+        let rate = plan.in_rate_hz;
+        let total = activity.samples;
+        if (total as f64) < SQUELCH_MIN_SECONDS * rate {
+            return Squelch::open();
+        }
+        let half = plan.bandwidth_hz / 2.0;
+        let Some(busy) = activity.spans_between(plan.offset_hz - half, plan.offset_hz + half)
+        else {
+            return Squelch::open();
+        };
+        let s = |secs: f64| (secs * rate) as u64;
+        let spans = crate::front::activity::widen(
+            &busy,
+            s(SQUELCH_BEFORE_S),
+            s(SQUELCH_AFTER_S),
+            s(SQUELCH_JOIN_S),
+            total,
+        );
+        let covered: u64 = spans.iter().map(|(a, b)| b - a).sum();
+        if covered as f64 > SQUELCH_MAX_BUSY * total as f64 {
+            return Squelch::open();
+        }
+        Squelch {
+            spans: Some(spans),
+            next: 0,
+        }
+    }
+
+    /// `pos` when the channel reads sample `pos`, else the start of its next busy span
+    /// (`u64::MAX` when none is left).
+    fn next_busy(&self, pos: u64) -> u64 {
+        let Some(spans) = &self.spans else {
+            return pos;
+        };
+        match spans[self.next..].iter().find(|&&(_, e)| e > pos) {
+            Some(&(s, _)) => s.max(pos),
+            None => u64::MAX,
+        }
+    }
+
+    /// Pushes the parts of `block` (first sample at `pos`) the channel reads; skips the rest.
+    fn feed(&mut self, dec: &mut Decoder, block: Samples<'_>, pos: u64) {
+        let (Some(spans), Samples::Iq(iq)) = (&self.spans, block) else {
+            dec.push(block);
+            return;
+        };
+        let end = pos + iq.len() as u64;
+        let mut at = pos;
+        while at < end {
+            while spans.get(self.next).is_some_and(|&(_, e)| e <= at) {
+                self.next += 1;
+            }
+            match spans.get(self.next) {
+                Some(&(s, e)) if s <= at => {
+                    let stop = e.min(end);
+                    dec.push(Samples::Iq(&iq[(at - pos) as usize..(stop - pos) as usize]));
+                    at = stop;
+                }
+                other => {
+                    let stop = other.map_or(end, |&(s, _)| s.min(end));
+                    dec.skip(stop - at);
+                    at = stop;
+                }
+            }
+        }
+    }
+
+    fn describe(&self, rate_hz: f64, total: u64) -> String {
+        match &self.spans {
+            None => "reads the whole capture".into(),
+            Some(s) => {
+                let covered: u64 = s.iter().map(|(a, b)| b - a).sum();
+                format!(
+                    "reads {} spans, {:.1} s of {:.1} s",
+                    s.len(),
+                    covered as f64 / rate_hz,
+                    total as f64 / rate_hz
+                )
+            }
+        }
+    }
 }
 
 /// Runs the spectrum survey over every block of an IQ source.
@@ -1177,13 +1399,21 @@ pub fn survey_source(src: &mut dyn SampleSource) -> Result<Survey, DecodeError> 
 pub fn survey_with_mean(
     src: &mut dyn SampleSource,
 ) -> Result<(Survey, num_complex::Complex32), DecodeError> {
-    survey_with_mean_progress(src, &|_| {})
+    survey_with_mean_progress(src, &|_| {}).map(|(s, m, _)| (s, m))
 }
 
+/// The survey, the mean, and the activity log of the survey's analysed frames.
 fn survey_with_mean_progress(
     src: &mut dyn SampleSource,
     tick: &dyn Fn(u64),
-) -> Result<(Survey, num_complex::Complex32), DecodeError> {
+) -> Result<
+    (
+        Survey,
+        num_complex::Complex32,
+        Option<crate::front::activity::Activity>,
+    ),
+    DecodeError,
+> {
     let mut sum = num_complex::Complex64::new(0.0, 0.0);
     let mut n = 0u64;
     let rate = src.info().rate.hz();
@@ -1196,8 +1426,9 @@ fn survey_with_mean_progress(
     // the decode of a long capture.
     cfg.frame_stride = SURVEY_FRAME_STRIDE;
     cfg.stride_after_frames = (SURVEY_FULL_SECONDS * rate / cfg.fft_len as f64) as u64;
-    let mut survey =
-        SpectrumSurvey::new(rate, cfg).map_err(|e| DecodeError::Front(e.to_string()))?;
+    let mut survey = SpectrumSurvey::new(rate, cfg)
+        .map_err(|e| DecodeError::Front(e.to_string()))?
+        .with_activity();
     while let Some(block) = src.next_block()? {
         if let Samples::Iq(iq) = block {
             survey.push(iq);
@@ -1210,6 +1441,7 @@ fn survey_with_mean_progress(
     Ok((
         survey.finish(),
         num_complex::Complex32::new(mean.re as f32, mean.im as f32),
+        survey.activity(),
     ))
 }
 

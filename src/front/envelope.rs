@@ -184,6 +184,14 @@ impl ChannelEnvelope {
     pub fn smoothing_delay(&self) -> f64 {
         self.smoother.delay()
     }
+
+    /// Forgets all state but the plan and the DC offset, as at the start of a capture.
+    pub fn reset(&mut self) {
+        self.ch.reset();
+        self.iq.clear();
+        self.prev = Complex32::new(0.0, 0.0);
+        self.smoother = Smoother::new(self.smoother.len());
+    }
 }
 
 /// The envelope stage of one decoding chain.
@@ -224,6 +232,15 @@ impl Front {
     pub fn flush(&mut self, out: &mut EnvelopeBlock) {
         if let Front::Wide(w) = self {
             w.flush(out);
+        }
+    }
+
+    /// Forgets all state, as at the start of a capture (the channel keeps its plan and DC
+    /// offset, a recorded envelope its restoration settings).
+    pub fn reset(&mut self) {
+        match self {
+            Front::Wide(w) => w.reset(),
+            Front::Channel(c) => c.reset(),
         }
     }
 

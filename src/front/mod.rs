@@ -51,6 +51,7 @@
 //! # Ok::<(), ooksift::front::FrontError>(())
 //! ```
 
+pub mod activity;
 pub mod baseline;
 pub mod channel;
 pub mod coherent;

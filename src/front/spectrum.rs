@@ -54,6 +54,7 @@ use num_complex::Complex32;
 use rustfft::{Fft, FftPlanner};
 use serde::{Deserialize, Serialize};
 
+use super::activity::{Activity, ActivityLog};
 use super::{check_rate, fir, power_db, FrontError, Result, MIN_DB};
 
 /// A steady peak whose centroid lies within this many bins of 0 Hz is the DC offset.
@@ -293,6 +294,8 @@ pub struct SpectrumSurvey {
     /// gate's factor over it.
     level: f32,
     gate: f32,
+    /// The squelch map, when asked for ([`SpectrumSurvey::with_activity`]).
+    activity: Option<ActivityLog>,
 }
 
 impl std::fmt::Debug for SpectrumSurvey {
@@ -336,7 +339,24 @@ impl SpectrumSurvey {
             level: 0.0,
             gate: 10f32.powf(cfg.gate_db / 10.0),
             cfg,
+            activity: None,
         })
+    }
+
+    /// Also logs when each part of the band was busy ([`super::activity`]), from the analysed
+    /// frames; read it with [`SpectrumSurvey::activity`].
+    pub fn with_activity(mut self) -> Self {
+        self.activity = Some(ActivityLog::new(
+            self.cfg.fft_len,
+            self.rate_hz / self.cfg.fft_len as f64,
+            self.rate_hz,
+        ));
+        self
+    }
+
+    /// The busy spans logged so far (None unless [`SpectrumSurvey::with_activity`]).
+    pub fn activity(&self) -> Option<Activity> {
+        self.activity.as_ref().map(ActivityLog::finish)
     }
 
     /// The configuration in force.
@@ -382,8 +402,9 @@ impl SpectrumSurvey {
         let stride = self.cfg.frame_stride as u64;
         let slot = self.slots;
         self.slots += 1;
+        let start = slot * self.cfg.hop_len as u64;
         if stride == 1 {
-            self.analyse(src, true);
+            self.analyse(src, true, start);
             return;
         }
         let frame: &[Complex32] = match src {
@@ -400,15 +421,15 @@ impl SpectrumSurvey {
             } else if p.is_finite() {
                 self.level += (p.min(self.level * self.gate) - self.level) / 16.0;
             }
-            self.analyse(src, true);
+            self.analyse(src, true, start);
         } else if p > self.level * self.gate {
-            self.analyse(src, false);
+            self.analyse(src, false, start);
         }
     }
 
-    /// Transforms a frame; `full` adds it to the sums and the frame count, otherwise it only
-    /// updates the peak-hold.
-    fn analyse(&mut self, src: FrameSrc<'_>, full: bool) {
+    /// Transforms a frame (first sample `start`); `full` adds it to the sums, the frame count
+    /// and the activity log, otherwise it only updates the peak-hold.
+    fn analyse(&mut self, src: FrameSrc<'_>, full: bool, start: u64) {
         let frame: &[Complex32] = match src {
             FrameSrc::Block(b) => b,
             FrameSrc::Pending => &self.pending,
@@ -455,6 +476,9 @@ impl SpectrumSurvey {
         if !full {
             return;
         }
+        if let Some(log) = self.activity.as_mut() {
+            log.push(&self.power, start, self.cfg.fft_len as u64);
+        }
         // Sums run in f32 over batches of `BATCH_FRAMES` frames (a schedule fixed by the frame
         // count), then move into f64, so long captures keep their precision.
         for ((b1, b2), &p) in self
@@ -492,6 +516,13 @@ impl SpectrumSurvey {
         self.samples = 0;
         self.slots = 0;
         self.level = 0.0;
+        if self.activity.is_some() {
+            self.activity = Some(ActivityLog::new(
+                self.cfg.fft_len,
+                self.rate_hz / self.cfg.fft_len as f64,
+                self.rate_hz,
+            ));
+        }
     }
 
     /// Spectra, floor, carriers and DC offset of everything pushed so far. May be called

@@ -186,6 +186,15 @@ pub trait SampleSource {
     ///
     /// Errors are final: a source that returned one yields nothing more.
     fn next_block(&mut self) -> Result<Option<Samples<'_>>>;
+
+    /// Passes over the next `n` samples without converting them, where the source can do so
+    /// cheaply: returns how many it passed (fewer only at the end of the stream), or `None`
+    /// when it cannot (the caller then reads the blocks and drops what it does not need).
+    /// Skipped samples are not checked (a NaN among them goes unnoticed).
+    fn skip_samples(&mut self, n: u64) -> Result<Option<u64>> {
+        let _ = n;
+        Ok(None)
+    }
 }
 
 /// How to open a capture.

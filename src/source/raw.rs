@@ -147,6 +147,29 @@ impl SampleSource for RawSource {
             Ok(Some(Samples::Envelope(&self.comps)))
         }
     }
+
+    /// Reads the bytes of `n` samples into the block buffer and drops them, a block at a
+    /// time: no conversion. A sample split by the end of the stream stays buffered, so the
+    /// next [`SampleSource::next_block`] reports it.
+    fn skip_samples(&mut self, n: u64) -> Result<Option<u64>> {
+        let sb = self.info.datatype.sample_bytes();
+        let mut want = n.saturating_mul(sb as u64);
+        let mut passed = 0u64;
+        while want > 0 {
+            // `fill` tops the buffer up to one block (after a carried partial sample).
+            self.fill()?;
+            let whole = (self.bytes.len() / sb * sb) as u64;
+            let take = whole.min(want) as usize;
+            if take == 0 {
+                break;
+            }
+            self.bytes.drain(..take);
+            want -= take as u64;
+            passed += (take / sb) as u64;
+        }
+        self.position += passed;
+        Ok(Some(passed))
+    }
 }
 
 #[cfg(test)]
@@ -164,6 +187,40 @@ mod tests {
             center_frequency_hz: None,
             declared_samples: None,
         }
+    }
+
+    #[test]
+    fn skipping_lands_on_the_same_samples_as_reading() {
+        // 1000 cu8 samples whose I byte counts up; skip 123 through a trickling reader, read
+        // the rest, and compare with reading everything.
+        let bytes: Vec<u8> = (0..2000u32).map(|i| (i / 2 % 251) as u8).collect();
+        let read_all = |skip: u64| {
+            let mut src = RawSource::new(info("cu8"), Box::new(Trickle(bytes.clone(), 0, 7)), 50);
+            let passed = src.skip_samples(skip).expect("skips");
+            let mut got = Vec::new();
+            while let Some(Samples::Iq(b)) = src.next_block().expect("reads") {
+                got.extend_from_slice(b);
+            }
+            (passed, got)
+        };
+        let (_, all) = read_all(0);
+        assert_eq!(all.len(), 1000);
+        let (passed, rest) = read_all(123);
+        assert_eq!(passed, Some(123));
+        assert_eq!(rest[..], all[123..]);
+        // Past the end: only what is there.
+        let (passed, rest) = read_all(5000);
+        assert_eq!((passed, rest.len()), (Some(1000), 0));
+    }
+
+    #[test]
+    fn a_split_sample_after_a_skip_is_still_an_error() {
+        let mut src = RawSource::new(info("cu8"), Box::new(Trickle(vec![128; 21], 0, 4)), 8);
+        assert_eq!(src.skip_samples(100).expect("skips"), Some(10));
+        assert!(matches!(
+            src.next_block(),
+            Err(SourceError::PartialSample { trailing: 1, .. })
+        ));
     }
 
     /// A reader that returns at most `step` bytes per call, like a pipe.

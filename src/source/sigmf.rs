@@ -266,6 +266,10 @@ impl SampleSource for SigmfSource {
     fn next_block(&mut self) -> Result<Option<Samples<'_>>> {
         self.inner.next_block()
     }
+
+    fn skip_samples(&mut self, n: u64) -> Result<Option<u64>> {
+        self.inner.skip_samples(n)
+    }
 }
 
 #[cfg(test)]
