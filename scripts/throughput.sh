@@ -7,8 +7,9 @@
 #
 # Steps, one process at a time: synthesize the captures (not timed), then in one run time
 # a plain read of the 66 s cu8 file (dd bs=1M, page cache warm), `ooksift decode` on it (one thread),
-# the numpy/scipy front end on it (scripts/front_numpy_file.py), and ooksift once more; then
-# peak memory (/usr/bin/time -v) of decode on 60 s vs 600 s cu8 and on 60 s vs 600 s ru8.
+# the numpy/scipy front end on it (scripts/front_numpy_file.py), ooksift once more, and once
+# with the squelch off; then peak memory (/usr/bin/time -v) of decode on 60 s vs 600 s cu8
+# (squelch on and off) and on 60 s vs 600 s ru8.
 set -euo pipefail
 cd "$(dirname "$0")/.."
 DIR=${1:-/tmp/ooksift-throughput}
@@ -64,6 +65,8 @@ timed "ooksift decode #1" "$DIR/t66.json" $BIN decode --rate 2048000 --json "$F"
 timed "numpy/scipy front end" "$DIR/numpy.txt" $PY scripts/front_numpy_file.py "$F" --offset-hz 100000
 sed "s/^/  numpy: /" "$DIR/numpy.txt"
 timed "ooksift decode #2" /dev/null $BIN decode --rate 2048000 --json "$F"
+# Every channel reading the whole file: the cost when the band is busy all the time.
+timed "ooksift decode, squelch off" /dev/null env OOKSIFT_NO_SQUELCH=1 $BIN decode --rate 2048000 --json "$F"
 $PY - "$DIR/t66.json" "$DIR/t66.truth.json" <<'PY'
 import json, sys
 r, t = (json.load(open(p)) for p in sys.argv[1:3])
@@ -75,6 +78,8 @@ PY
 echo "peak memory, IQ cu8 2.048 MHz:"
 timed "decode 60 s cu8" /dev/null $BIN decode --rate 2048000 --json "$DIR/m60.cu8"
 timed "decode 600 s cu8" /dev/null $BIN decode --rate 2048000 --json "$DIR/m600.cu8"
+timed "decode 60 s cu8, squelch off" /dev/null env OOKSIFT_NO_SQUELCH=1 $BIN decode --rate 2048000 --json "$DIR/m60.cu8"
+timed "decode 600 s cu8, squelch off" /dev/null env OOKSIFT_NO_SQUELCH=1 $BIN decode --rate 2048000 --json "$DIR/m600.cu8"
 echo "peak memory, envelope ru8 250 kHz:"
 timed "decode 60 s ru8" /dev/null $BIN decode --rate 250000 --json "$DIR/e60.ru8"
 timed "decode 600 s ru8" /dev/null $BIN decode --rate 250000 --json "$DIR/e600.ru8"

@@ -1429,12 +1429,28 @@ fn survey_with_mean_progress(
     let mut survey = SpectrumSurvey::new(rate, cfg)
         .map_err(|e| DecodeError::Front(e.to_string()))?
         .with_activity();
-    while let Some(block) = src.next_block()? {
-        if let Samples::Iq(iq) = block {
-            survey.push(iq);
-            sum += sum_iq(iq);
-            n += iq.len() as u64;
-            tick(n);
+    let cu8 = src
+        .bytes_datatype()
+        .is_some_and(|d| d.complex && d.component == source::Component::U8);
+    if cu8 {
+        // The file's own bytes: the survey converts only the frames it transforms, the DC
+        // offset comes from exact integer sums.
+        let mut sums = source::Cu8Sums::default();
+        while let Some(bytes) = src.next_bytes()? {
+            survey.push_cu8(bytes);
+            sums.add(source::Cu8Sums::of(bytes));
+            tick(sums.n);
+        }
+        n = sums.n;
+        sum = sums.mean() * n as f64;
+    } else {
+        while let Some(block) = src.next_block()? {
+            if let Samples::Iq(iq) = block {
+                survey.push(iq);
+                sum += sum_iq(iq);
+                n += iq.len() as u64;
+                tick(n);
+            }
         }
     }
     let mean = if n > 0 { sum / n as f64 } else { sum };

@@ -160,10 +160,12 @@ impl ActivityLog {
                 self.mean[b] = s;
                 self.var[b] = (0.2 * s).powi(2);
             }
-            let sigma = self.var[b].sqrt().max(MIN_REL_SIGMA * self.mean[b]);
-            let active = s > self.mean[b] + THRESHOLD_SIGMAS * sigma;
-            if s < self.mean[b] + QUIET_SIGMAS * sigma {
-                let d = s - self.mean[b];
+            // Compared in squares (no square root per band and frame): d > k·σ ⇔ d > 0 and
+            // d² > k²·σ².
+            let var = self.var[b].max((MIN_REL_SIGMA * self.mean[b]).powi(2));
+            let d = s - self.mean[b];
+            let active = d > 0.0 && d * d > THRESHOLD_SIGMAS * THRESHOLD_SIGMAS * var;
+            if d < 0.0 || d * d < QUIET_SIGMAS * QUIET_SIGMAS * var {
                 self.mean[b] += QUIET_ALPHA * d;
                 self.var[b] += QUIET_ALPHA * (d * d - self.var[b]);
             } else {
@@ -336,7 +338,10 @@ mod tests {
         assert!(s <= b0 && e >= b1, "{busy:?} vs {b0}..{b1}");
         assert!(e - s < 3 * (b1 - b0), "{busy:?}");
         // Far away from the burst: quiet all along.
-        assert_eq!(act.spans_between(-100e3, -80e3).expect("spans kept"), vec![]);
+        assert_eq!(
+            act.spans_between(-100e3, -80e3).expect("spans kept"),
+            vec![]
+        );
         assert_eq!(act.spans_between(100e3, 120e3).expect("spans kept"), vec![]);
     }
 

@@ -296,6 +296,10 @@ pub struct SpectrumSurvey {
     gate: f32,
     /// The squelch map, when asked for ([`SpectrumSurvey::with_activity`]).
     activity: Option<ActivityLog>,
+    /// `cu8` bytes of a partial frame ([`SpectrumSurvey::push_cu8`]), and the scratch its
+    /// frames are converted into.
+    pending_bytes: Vec<u8>,
+    converted: Vec<Complex32>,
 }
 
 impl std::fmt::Debug for SpectrumSurvey {
@@ -340,6 +344,8 @@ impl SpectrumSurvey {
             gate: 10f32.powf(cfg.gate_db / 10.0),
             cfg,
             activity: None,
+            pending_bytes: Vec::new(),
+            converted: Vec::with_capacity(n),
         })
     }
 
@@ -396,6 +402,83 @@ impl SpectrumSurvey {
         }
     }
 
+    /// Feeds a block of `cu8` bytes (interleaved I/Q codes, a trailing odd byte ignored):
+    /// the same survey as [`SpectrumSurvey::push`] of the converted samples, but only the
+    /// frames that are transformed get converted; the gate of skipped frames reads their
+    /// power from exact integer sums of the codes (so its decisions may differ from
+    /// `push`'s f32 sums where a frame's power falls within rounding of the gate).
+    pub fn push_cu8(&mut self, bytes: &[u8]) {
+        let bytes = &bytes[..bytes.len() / 2 * 2];
+        self.samples += (bytes.len() / 2) as u64;
+        let n = 2 * self.cfg.fft_len;
+        let hop = 2 * self.cfg.hop_len;
+        let mut rest = bytes;
+        while !rest.is_empty() {
+            if self.pending_bytes.is_empty() {
+                while rest.len() >= n {
+                    self.frame_cu8(&rest[..n]);
+                    rest = &rest[hop..];
+                }
+                self.pending_bytes.extend_from_slice(rest);
+                break;
+            }
+            let take = (n - self.pending_bytes.len()).min(rest.len());
+            self.pending_bytes.extend_from_slice(&rest[..take]);
+            rest = &rest[take..];
+            if self.pending_bytes.len() == n {
+                let frame = std::mem::take(&mut self.pending_bytes);
+                self.frame_cu8(&frame);
+                self.pending_bytes = frame;
+                self.pending_bytes.drain(..hop);
+            }
+        }
+    }
+
+    /// [`SpectrumSurvey::frame`] of one frame of `cu8` bytes.
+    fn frame_cu8(&mut self, bytes: &[u8]) {
+        let stride = self.cfg.frame_stride as u64;
+        let slot = self.slots;
+        self.slots += 1;
+        let start = slot * self.cfg.hop_len as u64;
+        let after = self.cfg.stride_after_frames;
+        let analysed = stride == 1 || slot < after || (slot - after) % stride == 0;
+        let p = if stride == 1 {
+            0.0
+        } else {
+            crate::source::Cu8Sums::of(bytes).mean_power() as f32
+        };
+        let full = if analysed {
+            if stride > 1 {
+                self.follow_level(p);
+            }
+            true
+        } else if p > self.level * self.gate {
+            false
+        } else {
+            return;
+        };
+        let mut conv = std::mem::take(&mut self.converted);
+        conv.clear();
+        let cu8 = crate::source::Datatype {
+            complex: true,
+            component: crate::source::Component::U8,
+            big_endian: false,
+        };
+        cu8.decode_iq_fast(bytes, &mut conv);
+        self.analyse(FrameSrc::Block(&conv), full, start);
+        self.converted = conv;
+    }
+
+    /// The running level of the analysed frames: follows their power `p`, but a burst
+    /// raises it only by the gate's factor per frame (non-finite powers leave it alone).
+    fn follow_level(&mut self, p: f32) {
+        if self.level == 0.0 {
+            self.level = if p.is_finite() { p } else { 0.0 };
+        } else if p.is_finite() {
+            self.level += (p.min(self.level * self.gate) - self.level) / 16.0;
+        }
+    }
+
     /// One frame: analysed in full, skipped, or (past the gate) transformed for the
     /// peak-hold only.
     fn frame(&mut self, src: FrameSrc<'_>) {
@@ -414,13 +497,7 @@ impl SpectrumSurvey {
         let p = mean_power(frame);
         let after = self.cfg.stride_after_frames;
         if slot < after || (slot - after) % stride == 0 {
-            // The level follows the analysed frames, but a burst raises it only by the gate's
-            // factor per frame (non-finite powers leave it alone).
-            if self.level == 0.0 {
-                self.level = if p.is_finite() { p } else { 0.0 };
-            } else if p.is_finite() {
-                self.level += (p.min(self.level * self.gate) - self.level) / 16.0;
-            }
+            self.follow_level(p);
             self.analyse(src, true, start);
         } else if p > self.level * self.gate {
             self.analyse(src, false, start);
@@ -507,6 +584,7 @@ impl SpectrumSurvey {
     /// survey).
     pub fn reset(&mut self) {
         self.pending.clear();
+        self.pending_bytes.clear();
         self.sum_p.iter_mut().for_each(|v| *v = 0.0);
         self.sum_p2.iter_mut().for_each(|v| *v = 0.0);
         self.batch_p.iter_mut().for_each(|v| *v = 0.0);
@@ -1028,6 +1106,47 @@ mod tests {
                     + ook(n, 0.1, -95e3, 300, 900, 20_000, 50_000)
             })
             .collect()
+    }
+
+    /// The survey of `cu8` bytes is the survey of the converted samples: bit for bit when
+    /// every frame is analysed, and the same carriers with a stride (the gate then reads
+    /// exact integer powers instead of f32 sums). The activity log sees the same frames.
+    #[test]
+    fn cu8_bytes_survey_like_their_samples() {
+        let x = mixed_signal(300_001);
+        let bytes: Vec<u8> = x
+            .iter()
+            .flat_map(|z| [z.re, z.im])
+            .map(|v| (v * 127.5 + 127.5).round().clamp(0.0, 255.0) as u8)
+            .collect();
+        let cu8: crate::source::Datatype = "cu8".parse().expect("valid");
+        let mut samples = Vec::new();
+        assert!(cu8.decode_iq_fast(&bytes, &mut samples));
+        for stride in [1, 4] {
+            let cfg = SurveyConfig {
+                frame_stride: stride,
+                stride_after_frames: 20,
+                ..SurveyConfig::for_rate(RATE)
+            };
+            let mut a = SpectrumSurvey::new(RATE, cfg.clone())
+                .expect("valid")
+                .with_activity();
+            let mut b = SpectrumSurvey::new(RATE, cfg)
+                .expect("valid")
+                .with_activity();
+            a.push(&samples);
+            for chunk in bytes.chunks(3002) {
+                b.push_cu8(chunk);
+            }
+            let (sa, sb) = (a.finish(), b.finish());
+            if stride == 1 {
+                assert_eq!(sa, sb);
+            }
+            let offsets = |s: &Survey| s.carriers.iter().map(|c| c.offset_hz).collect::<Vec<_>>();
+            assert_eq!(offsets(&sa), offsets(&sb), "stride {stride}");
+            assert!(!sa.carriers.is_empty());
+            assert_eq!(a.activity(), b.activity(), "stride {stride}");
+        }
     }
 
     #[test]

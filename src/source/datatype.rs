@@ -280,6 +280,105 @@ impl Datatype {
     }
 }
 
+/// Exact integer sums over `cu8` bytes (whole samples): Σ I codes, Σ Q codes and Σ of the
+/// squares of all codes. The survey pass needs only these of most samples — the receiver's
+/// DC offset and each frame's mean power — so it can skip converting them.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq)]
+pub struct Cu8Sums {
+    /// Σ of the I bytes.
+    pub i: u64,
+    /// Σ of the Q bytes.
+    pub q: u64,
+    /// Σ of the squares of every byte.
+    pub sq: u64,
+    /// Samples summed.
+    pub n: u64,
+}
+
+impl Cu8Sums {
+    /// Sums over `bytes` (a trailing odd byte is ignored).
+    pub fn of(bytes: &[u8]) -> Cu8Sums {
+        let whole = &bytes[..bytes.len() / 2 * 2];
+        #[cfg(target_arch = "x86_64")]
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the CPU reports AVX2, the only feature `cu8_sums_avx2` is compiled for.
+            return unsafe { cu8_sums_avx2(whole) };
+        }
+        cu8_sums(whole)
+    }
+
+    /// Mean power of the samples as [`Datatype::decode_components`] scales them,
+    /// Σ((b − 127.5)/127.5)² / n, from the exact sums (0 for no sample).
+    pub fn mean_power(&self) -> f64 {
+        if self.n == 0 {
+            return 0.0;
+        }
+        let s1 = (self.i + self.q) as f64;
+        let centred = self.sq as f64 - 255.0 * s1 + 2.0 * self.n as f64 * 127.5 * 127.5;
+        centred / (127.5 * 127.5) / self.n as f64
+    }
+
+    /// Mean sample, scaled as [`Datatype::decode_components`] does (0 for no sample).
+    pub fn mean(&self) -> num_complex::Complex64 {
+        if self.n == 0 {
+            return num_complex::Complex64::new(0.0, 0.0);
+        }
+        let n = self.n as f64;
+        num_complex::Complex64::new(
+            (self.i as f64 - 127.5 * n) / 127.5 / n,
+            (self.q as f64 - 127.5 * n) / 127.5 / n,
+        )
+    }
+
+    /// Adds another stretch's sums.
+    pub fn add(&mut self, o: Cu8Sums) {
+        self.i += o.i;
+        self.q += o.q;
+        self.sq += o.sq;
+        self.n += o.n;
+    }
+}
+
+/// [`Cu8Sums::of`], portable: 32-bit lane sums over chunks short enough not to overflow.
+#[inline(always)]
+fn cu8_sums(bytes: &[u8]) -> Cu8Sums {
+    const LANES: usize = 16;
+    // 4096 bytes per chunk: a lane holds at most 128 squares of 255² < 2³².
+    let mut out = Cu8Sums {
+        n: (bytes.len() / 2) as u64,
+        ..Cu8Sums::default()
+    };
+    for chunk in bytes.chunks(4096) {
+        let (mut si, mut sq, mut s2) = ([0u32; LANES], [0u32; LANES], [0u32; LANES]);
+        let mut it = chunk.chunks_exact(2 * LANES);
+        for c in &mut it {
+            for l in 0..LANES {
+                let (a, b) = (c[2 * l] as u32, c[2 * l + 1] as u32);
+                si[l] += a;
+                sq[l] += b;
+                s2[l] += a * a + b * b;
+            }
+        }
+        for p in it.remainder().chunks_exact(2) {
+            let (a, b) = (p[0] as u32, p[1] as u32);
+            si[0] += a;
+            sq[0] += b;
+            s2[0] += a * a + b * b;
+        }
+        out.i += si.iter().map(|&v| v as u64).sum::<u64>();
+        out.q += sq.iter().map(|&v| v as u64).sum::<u64>();
+        out.sq += s2.iter().map(|&v| v as u64).sum::<u64>();
+    }
+    out
+}
+
+/// [`cu8_sums`] compiled for AVX2 (integer sums: the same result).
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+unsafe fn cu8_sums_avx2(bytes: &[u8]) -> Cu8Sums {
+    cu8_sums(bytes)
+}
+
 /// cu8 bytes to complex samples: (b − 127.5) · (1/127.5) in f64, rounded once to f32.
 #[inline(always)]
 fn cu8_to_iq(bytes: &[u8], out: &mut [num_complex::Complex32]) {
@@ -301,6 +400,43 @@ unsafe fn cu8_to_iq_avx2(bytes: &[u8], out: &mut [num_complex::Complex32]) {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// The integer sums give the DC offset and the power of the converted samples.
+    #[test]
+    fn cu8_sums_match_the_converted_samples() {
+        let bytes: Vec<u8> = (0..10_001u32).map(|k| (k * 7919 % 256) as u8).collect();
+        let dt: Datatype = "cu8".parse().expect("valid");
+        let mut iq = Vec::new();
+        assert!(dt.decode_iq_fast(&bytes, &mut iq));
+        let s = Cu8Sums::of(&bytes);
+        assert_eq!(s.n, 5000);
+        let n = iq.len() as f64;
+        let mean_re = iq.iter().map(|z| z.re as f64).sum::<f64>() / n;
+        let mean_im = iq.iter().map(|z| z.im as f64).sum::<f64>() / n;
+        // The converted samples carry f32 rounding (≈ 6e-8 relative); the sums are exact.
+        let power = iq
+            .iter()
+            .map(|z| (z.re as f64).powi(2) + (z.im as f64).powi(2))
+            .sum::<f64>()
+            / n;
+        assert!(
+            (s.mean().re - mean_re).abs() < 1e-9,
+            "{} {mean_re}",
+            s.mean().re
+        );
+        assert!((s.mean().im - mean_im).abs() < 1e-9);
+        assert!(
+            (s.mean_power() - power).abs() < 1e-7 * power,
+            "{} {power}",
+            s.mean_power()
+        );
+        // The plain loop and the dispatched one agree; sums add.
+        assert_eq!(cu8_sums(&bytes[..10_000]), s);
+        let mut parts = Cu8Sums::of(&bytes[..4000]);
+        parts.add(Cu8Sums::of(&bytes[4000..]));
+        assert_eq!(parts, s);
+        assert_eq!(Cu8Sums::of(&[]).mean_power(), 0.0);
+    }
 
     /// cu8 components follow the documented formula, and the direct complex path gives the
     /// same samples as the component path, bit for bit.

@@ -20,7 +20,7 @@ mod raw;
 mod sigmf;
 mod wav;
 
-pub use datatype::{Component, Datatype, UnknownDatatype};
+pub use datatype::{Component, Cu8Sums, Datatype, UnknownDatatype};
 pub use raw::RawSource;
 pub use sigmf::{SigmfMeta, SigmfSource};
 pub use wav::WavSource;
@@ -193,6 +193,20 @@ pub trait SampleSource {
     /// Skipped samples are not checked (a NaN among them goes unnoticed).
     fn skip_samples(&mut self, n: u64) -> Result<Option<u64>> {
         let _ = n;
+        Ok(None)
+    }
+
+    /// The datatype of [`SampleSource::next_bytes`]'s blocks, when this source offers its
+    /// bytes unconverted (`None` by default).
+    fn bytes_datatype(&self) -> Option<Datatype> {
+        None
+    }
+
+    /// The next block as the capture's own bytes, whole samples only, unconverted and
+    /// unchecked; `Ok(None)` at the end (and always, unless
+    /// [`SampleSource::bytes_datatype`] is `Some`). Do not mix with `next_block` on one
+    /// stream unless the caller tracks positions itself.
+    fn next_bytes(&mut self) -> Result<Option<&[u8]>> {
         Ok(None)
     }
 }

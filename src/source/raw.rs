@@ -20,6 +20,8 @@ pub struct RawSource {
     /// Bytes left to read when a limit applies (SigMF datasets with trailing bytes).
     remaining: Option<u64>,
     done: bool,
+    /// Bytes handed out by `next_bytes`, dropped from `bytes` at the next call.
+    handed: usize,
 }
 
 impl RawSource {
@@ -36,6 +38,7 @@ impl RawSource {
             position: 0,
             remaining: None,
             done: false,
+            handed: 0,
         }
     }
 
@@ -45,7 +48,43 @@ impl RawSource {
         self
     }
 
+    /// Fills the buffer; the number of bytes of whole samples at its front, or `None` at
+    /// the end. A stream that ends inside a sample, or holds no sample at all, is an error.
+    fn next_whole(&mut self) -> Result<Option<usize>> {
+        if self.done && self.bytes.len() == self.handed {
+            self.bytes.clear();
+            self.handed = 0;
+            return Ok(None);
+        }
+        self.fill()?;
+        let dt = self.info.datatype;
+        let sb = dt.sample_bytes();
+        let whole = self.bytes.len() / sb * sb;
+        let trailing = self.bytes.len() - whole;
+        if whole == 0 && trailing == 0 {
+            if self.position == 0 {
+                return Err(SourceError::Empty);
+            }
+            return Ok(None);
+        }
+        if self.done && trailing > 0 {
+            // The stream ended inside a sample: reporting it after this block's last whole
+            // sample would be indistinguishable from silence, so fail now.
+            self.bytes.clear();
+            return Err(SourceError::PartialSample {
+                trailing,
+                datatype: dt.to_string(),
+                sample_bytes: sb,
+            });
+        }
+        Ok(Some(whole))
+    }
+
     fn fill(&mut self) -> Result<()> {
+        if self.handed > 0 {
+            self.bytes.drain(..self.handed);
+            self.handed = 0;
+        }
         let sb = self.info.datatype.sample_bytes();
         let want = self.block_samples * sb;
         let mut have = self.bytes.len();
@@ -85,28 +124,11 @@ impl SampleSource for RawSource {
     }
 
     fn next_block(&mut self) -> Result<Option<Samples<'_>>> {
-        if self.done && self.bytes.is_empty() {
+        let Some(whole) = self.next_whole()? else {
             return Ok(None);
-        }
-        self.fill()?;
+        };
         let dt = self.info.datatype;
         let sb = dt.sample_bytes();
-        let whole = self.bytes.len() / sb * sb;
-        if whole == 0 {
-            if !self.bytes.is_empty() {
-                let trailing = self.bytes.len();
-                self.bytes.clear();
-                return Err(SourceError::PartialSample {
-                    trailing,
-                    datatype: dt.to_string(),
-                    sample_bytes: sb,
-                });
-            }
-            if self.position == 0 {
-                return Err(SourceError::Empty);
-            }
-            return Ok(None);
-        }
         self.comps.clear();
         self.iq.clear();
         let direct = dt.decode_iq_fast(&self.bytes[..whole], &mut self.iq);
@@ -114,15 +136,6 @@ impl SampleSource for RawSource {
             dt.decode_components(&self.bytes[..whole], &mut self.comps);
         }
         self.bytes.drain(..whole);
-        if self.done && !self.bytes.is_empty() {
-            // The stream ended inside a sample; report it after this block's last whole sample
-            // would be indistinguishable from silence, so fail now.
-            return Err(SourceError::PartialSample {
-                trailing: self.bytes.len(),
-                datatype: dt.to_string(),
-                sample_bytes: sb,
-            });
-        }
         if dt.is_float() {
             let per = if dt.complex { 2 } else { 1 };
             if let Some(i) = self.comps.iter().position(|v| !v.is_finite()) {
@@ -170,6 +183,21 @@ impl SampleSource for RawSource {
         self.position += passed;
         Ok(Some(passed))
     }
+
+    fn bytes_datatype(&self) -> Option<super::Datatype> {
+        Some(self.info.datatype)
+    }
+
+    /// Whole samples' bytes straight from the buffer (dropped at the next call); the same
+    /// end-of-stream checks as [`SampleSource::next_block`], but floats are not checked.
+    fn next_bytes(&mut self) -> Result<Option<&[u8]>> {
+        let Some(whole) = self.next_whole()? else {
+            return Ok(None);
+        };
+        self.handed = whole;
+        self.position += (whole / self.info.datatype.sample_bytes()) as u64;
+        Ok(Some(&self.bytes[..whole]))
+    }
 }
 
 #[cfg(test)]
@@ -211,6 +239,40 @@ mod tests {
         // Past the end: only what is there.
         let (passed, rest) = read_all(5000);
         assert_eq!((passed, rest.len()), (Some(1000), 0));
+    }
+
+    #[test]
+    fn bytes_come_out_whole_and_unchanged() {
+        let bytes: Vec<u8> = (0..999u32).map(|i| (i % 256) as u8).collect();
+        let mut src = RawSource::new(info("cu8"), Box::new(Trickle(bytes.clone(), 0, 5)), 64);
+        assert_eq!(src.bytes_datatype(), Some("cu8".parse().expect("valid")));
+        let mut got = Vec::new();
+        let err = loop {
+            match src.next_bytes() {
+                Ok(Some(b)) => {
+                    assert_eq!(b.len() % 2, 0);
+                    got.extend_from_slice(b);
+                }
+                Ok(None) => break None,
+                Err(e) => break Some(e),
+            }
+        };
+        // 999 bytes: 499 whole samples, then the split one is an error, as for next_block.
+        assert_eq!(got[..], bytes[..got.len()]);
+        assert!(
+            matches!(err, Some(SourceError::PartialSample { trailing: 1, .. })),
+            "{err:?}"
+        );
+        let mut whole = RawSource::new(
+            info("cu8"),
+            Box::new(Trickle(bytes[..998].to_vec(), 0, 5)),
+            64,
+        );
+        let mut n = 0;
+        while let Some(b) = whole.next_bytes().expect("reads") {
+            n += b.len();
+        }
+        assert_eq!(n, 998);
     }
 
     #[test]

@@ -270,6 +270,14 @@ impl SampleSource for SigmfSource {
     fn skip_samples(&mut self, n: u64) -> Result<Option<u64>> {
         self.inner.skip_samples(n)
     }
+
+    fn bytes_datatype(&self) -> Option<super::Datatype> {
+        self.inner.bytes_datatype()
+    }
+
+    fn next_bytes(&mut self) -> Result<Option<&[u8]>> {
+        self.inner.next_bytes()
+    }
 }
 
 #[cfg(test)]
