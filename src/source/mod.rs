@@ -269,6 +269,23 @@ fn validated_rate(hz: Option<f64>) -> Result<Rate> {
 }
 
 /// Reads the first bytes of a stream without losing them.
+/// What is known of a headerless capture: the datatype and the options' rate and centre.
+fn raw_info(
+    path: &str,
+    datatype: Datatype,
+    file_len: Option<u64>,
+    opts: &OpenOptions,
+) -> Result<CaptureInfo> {
+    Ok(CaptureInfo {
+        path: path.to_string(),
+        container: Container::Raw,
+        datatype,
+        rate: validated_rate(opts.rate_hz)?,
+        center_frequency_hz: opts.center_hz,
+        declared_samples: file_len.map(|n| n / datatype.sample_bytes() as u64),
+    })
+}
+
 fn sniff(mut r: Box<dyn Read>) -> Result<(Vec<u8>, Box<dyn Read>)> {
     let mut head = Vec::with_capacity(12);
     r.by_ref().take(12).read_to_end(&mut head)?;
@@ -294,6 +311,20 @@ pub fn open(path: &str, opts: &OpenOptions) -> Result<Box<dyn SampleSource>> {
             ));
         }
         return Ok(Box::new(SigmfSource::open(path, opts)?));
+    }
+    if let (Some(Chosen::Raw(datatype)), false) = (chosen, path == "-") {
+        // A raw file needs no sniffing, and stays seekable (skips seek instead of reading).
+        let f = File::open(path)?;
+        let len = f.metadata()?.len();
+        if len == 0 {
+            return Err(SourceError::Empty);
+        }
+        let info = raw_info(path, datatype, Some(len), opts)?;
+        return Ok(Box::new(RawSource::from_file(
+            info,
+            f,
+            opts.block_samples.max(1),
+        )?));
     }
     let (reader, file_len): (Box<dyn Read>, Option<u64>) = if path == "-" {
         (Box::new(std::io::stdin().lock()), None)
@@ -369,15 +400,7 @@ fn open_reader(
             block,
         )?)),
         Chosen::Raw(datatype) => {
-            let rate = validated_rate(opts.rate_hz)?;
-            let info = CaptureInfo {
-                path: path.to_string(),
-                container: Container::Raw,
-                datatype,
-                rate,
-                center_frequency_hz: opts.center_hz,
-                declared_samples: file_len.map(|n| n / datatype.sample_bytes() as u64),
-            };
+            let info = raw_info(path, datatype, file_len, opts)?;
             Ok(Box::new(RawSource::new(info, reader, block)))
         }
         Chosen::Sigmf => Err(SourceError::UnknownFormat),
