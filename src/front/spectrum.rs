@@ -378,28 +378,10 @@ impl SpectrumSurvey {
     /// Feeds a block of any length. Non-finite samples count as zero.
     pub fn push(&mut self, block: &[Complex32]) {
         self.samples += block.len() as u64;
-        let n = self.cfg.fft_len;
-        let hop = self.cfg.hop_len;
-        let mut rest = block;
-        while !rest.is_empty() {
-            if self.pending.is_empty() {
-                // Whole frames straight from the caller's block: same values, same arithmetic
-                // as through `pending`, so block boundaries do not matter.
-                while rest.len() >= n {
-                    self.frame(FrameSrc::Block(&rest[..n]));
-                    rest = &rest[hop..];
-                }
-                self.pending.extend_from_slice(rest);
-                break;
-            }
-            let take = (n - self.pending.len()).min(rest.len());
-            self.pending.extend_from_slice(&rest[..take]);
-            rest = &rest[take..];
-            if self.pending.len() == n {
-                self.frame(FrameSrc::Pending);
-                self.pending.drain(..hop);
-            }
-        }
+        let mut pending = std::mem::take(&mut self.pending);
+        let (n, hop) = (self.cfg.fft_len, self.cfg.hop_len);
+        cut_frames(&mut pending, block, n, hop, |frame| self.frame(frame));
+        self.pending = pending;
     }
 
     /// Feeds a block of `cu8` bytes (interleaved I/Q codes, a trailing odd byte ignored):
@@ -410,28 +392,10 @@ impl SpectrumSurvey {
     pub fn push_cu8(&mut self, bytes: &[u8]) {
         let bytes = &bytes[..bytes.len() / 2 * 2];
         self.samples += (bytes.len() / 2) as u64;
-        let n = 2 * self.cfg.fft_len;
-        let hop = 2 * self.cfg.hop_len;
-        let mut rest = bytes;
-        while !rest.is_empty() {
-            if self.pending_bytes.is_empty() {
-                while rest.len() >= n {
-                    self.frame_cu8(&rest[..n]);
-                    rest = &rest[hop..];
-                }
-                self.pending_bytes.extend_from_slice(rest);
-                break;
-            }
-            let take = (n - self.pending_bytes.len()).min(rest.len());
-            self.pending_bytes.extend_from_slice(&rest[..take]);
-            rest = &rest[take..];
-            if self.pending_bytes.len() == n {
-                let frame = std::mem::take(&mut self.pending_bytes);
-                self.frame_cu8(&frame);
-                self.pending_bytes = frame;
-                self.pending_bytes.drain(..hop);
-            }
-        }
+        let mut pending = std::mem::take(&mut self.pending_bytes);
+        let (n, hop) = (2 * self.cfg.fft_len, 2 * self.cfg.hop_len);
+        cut_frames(&mut pending, bytes, n, hop, |frame| self.frame_cu8(frame));
+        self.pending_bytes = pending;
     }
 
     /// [`SpectrumSurvey::frame`] of one frame of `cu8` bytes.
@@ -465,7 +429,7 @@ impl SpectrumSurvey {
             big_endian: false,
         };
         cu8.decode_iq_fast(bytes, &mut conv);
-        self.analyse(FrameSrc::Block(&conv), full, start);
+        self.analyse(&conv, full, start);
         self.converted = conv;
     }
 
@@ -481,36 +445,28 @@ impl SpectrumSurvey {
 
     /// One frame: analysed in full, skipped, or (past the gate) transformed for the
     /// peak-hold only.
-    fn frame(&mut self, src: FrameSrc<'_>) {
+    fn frame(&mut self, frame: &[Complex32]) {
         let stride = self.cfg.frame_stride as u64;
         let slot = self.slots;
         self.slots += 1;
         let start = slot * self.cfg.hop_len as u64;
         if stride == 1 {
-            self.analyse(src, true, start);
+            self.analyse(frame, true, start);
             return;
         }
-        let frame: &[Complex32] = match src {
-            FrameSrc::Block(b) => b,
-            FrameSrc::Pending => &self.pending,
-        };
         let p = mean_power(frame);
         let after = self.cfg.stride_after_frames;
         if slot < after || (slot - after) % stride == 0 {
             self.follow_level(p);
-            self.analyse(src, true, start);
+            self.analyse(frame, true, start);
         } else if p > self.level * self.gate {
-            self.analyse(src, false, start);
+            self.analyse(frame, false, start);
         }
     }
 
     /// Transforms a frame (first sample `start`); `full` adds it to the sums, the frame count
     /// and the activity log, otherwise it only updates the peak-hold.
-    fn analyse(&mut self, src: FrameSrc<'_>, full: bool, start: u64) {
-        let frame: &[Complex32] = match src {
-            FrameSrc::Block(b) => b,
-            FrameSrc::Pending => &self.pending,
-        };
+    fn analyse(&mut self, frame: &[Complex32], full: bool, start: u64) {
         for ((dst, &s), &w) in self.work.iter_mut().zip(frame).zip(&self.window) {
             *dst = s * w;
         }
@@ -756,9 +712,33 @@ fn mean_power(frame: &[Complex32]) -> f32 {
 /// Power given to bins that overflow (its square still fits an `f32`).
 const SATURATED_POWER: f32 = 1e15;
 
-enum FrameSrc<'a> {
-    Block(&'a [Complex32]),
-    Pending,
+/// Cuts a stream into frames of `n` elements starting every `hop`: whole frames straight
+/// from `rest` where they lie in it, others assembled in `pending` (a partial frame carried
+/// between blocks). The frames are the same whatever the block boundaries.
+fn cut_frames<T: Copy>(
+    pending: &mut Vec<T>,
+    mut rest: &[T],
+    n: usize,
+    hop: usize,
+    mut frame: impl FnMut(&[T]),
+) {
+    while !rest.is_empty() {
+        if pending.is_empty() {
+            while rest.len() >= n {
+                frame(&rest[..n]);
+                rest = &rest[hop..];
+            }
+            pending.extend_from_slice(rest);
+            return;
+        }
+        let take = (n - pending.len()).min(rest.len());
+        pending.extend_from_slice(&rest[..take]);
+        rest = &rest[take..];
+        if pending.len() == n {
+            frame(pending);
+            pending.drain(..hop);
+        }
+    }
 }
 
 fn db_to_ratio(db: f32) -> f64 {
