@@ -168,3 +168,50 @@ fn short_and_busy_captures_are_read_whole() {
     assert!(read_shares(&err).is_empty(), "{err}");
     assert!(err.contains("reads the whole capture"), "{err}");
 }
+
+#[test]
+fn interferer_dc_spike_and_drift_in_a_long_capture() {
+    // 30 s at 250 kHz: a continuous tone 20 dB above the buttons at −90 kHz, the receiver's
+    // DC offset, a PWM button drifting 3 kHz during each press at +40 kHz and a PPM button at
+    // −40 kHz, presses 7 s apart (issue 3's hazards, now with the squelch acting). Truth: the
+    // synth truth file; the tone and the DC spike yield no code and no channel reads them.
+    let d = tempfile::tempdir().expect("tempdir");
+    let cap = d.path().join("hazards.cu8");
+    let truth = synth(
+        &cap,
+        &[
+            "--rate",
+            "250000",
+            "--amplitude",
+            "0.05",
+            "--snr-db",
+            "20",
+            "--seed",
+            "9",
+            "--tone",
+            "-90000,0.5",
+            "--dc",
+            "0.08,-0.05",
+            "--lead-ms",
+            "3000",
+            "--duration-ms",
+            "30000",
+            "--press",
+            "pwm:0x71c5b3,unit_us=350,repeats=6,offset_hz=40000,drift_hz=3000",
+            "--press",
+            "ppm:0x1e2d3c4b,unit_us=300,repeats=4,offset_hz=-40000,gap_ms=6700",
+            "--press",
+            "pwm:0x71c5b3,unit_us=350,repeats=6,offset_hz=40000,drift_hz=3000,gap_ms=6700",
+            "--press",
+            "ppm:0x1e2d3c4b,unit_us=300,repeats=4,offset_hz=-40000,gap_ms=6700",
+        ],
+    );
+    let (on, err) = decode(&cap, true);
+    assert_report_matches(&on, &truth, 1000.0, "hazards");
+    let shares = read_shares(&err);
+    assert_eq!(shares.len(), 2, "one squelched channel per button: {err}");
+    assert!(!err.contains("reads the whole capture"), "{err}");
+    for (read, total) in shares {
+        assert!(total > 29.0 && read < 0.25 * total, "{read} of {total} s");
+    }
+}
