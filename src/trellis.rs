@@ -89,8 +89,8 @@ const COARSE_STEPS_PER_UNIT: f64 = 4.0;
 /// Fewest grid steps per unit the search accepts.
 const MIN_STEPS_PER_UNIT: f64 = 3.0;
 /// Largest search table (states × grid positions); a burst needing more is left to the
-/// edge-based readings. 3 M cells are 36 MB.
-pub const MAX_CELLS: usize = 3 << 20;
+/// edge-based readings. 1 M cells are 12 MB.
+pub const MAX_CELLS: usize = 1 << 20;
 
 /// Back-pointer: which state and position a state was reached from.
 #[derive(Debug, Clone, Copy)]

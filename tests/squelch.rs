@@ -215,3 +215,35 @@ fn interferer_dc_spike_and_drift_in_a_long_capture() {
         assert!(total > 29.0 && read < 0.25 * total, "{read} of {total} s");
     }
 }
+
+#[test]
+fn near_the_floor_a_long_capture_yields_no_wrong_code() {
+    // Eu/N0 = 12, 13 and 14 dB: presses may be lost, but every code reported is one of the
+    // truth's, and the PWM button (the easier code) comes out with both presses. Measured
+    // when added: PWM 2 presses at each level, PPM 0, 1 and 2 presses.
+    let d = tempfile::tempdir().expect("tempdir");
+    for snr in ["12", "13", "14"] {
+        let cap = d.path().join(format!("floor{snr}.cu8"));
+        let truth = sparse(&cap, snr);
+        let (on, _) = decode(&cap, true);
+        let want = codes(&truth);
+        let got = codes(&on);
+        for (bits, presses, frames) in &got {
+            let t = want.iter().find(|(b, _, _)| b == bits);
+            assert!(
+                t.is_some(),
+                "{snr} dB: wrong code {bits} ({presses} presses)"
+            );
+            let (_, tp, tf) = t.expect("found");
+            assert!(
+                presses <= tp && frames <= tf,
+                "{snr} dB: {got:?} vs {want:?}"
+            );
+        }
+        let pwm = &want.iter().find(|(b, _, _)| b.len() == 24).expect("pwm").0;
+        assert!(
+            got.iter().any(|(b, p, _)| b == pwm && *p == 2),
+            "{snr} dB: {got:?}"
+        );
+    }
+}
