@@ -227,8 +227,9 @@ impl Decoder {
     /// [`decode_path`]): what the segment so far holds is read as at the end of a capture
     /// (an open mark or burst closes and is decoded), and the next block pushed starts a new
     /// segment at its true capture position, with the front, the edge detector and the
-    /// burst splitter started afresh. Presses and notes carry over; the report is the same
-    /// as if the quiet samples had been pushed, wherever they held no burst.
+    /// burst splitter started afresh. Presses and notes carry over. Where the skipped samples
+    /// held no burst the codes are those of pushing them, but not the report byte for byte:
+    /// the restarted filters place edges a few microseconds differently.
     pub fn skip(&mut self, n: u64) {
         if n == 0 {
             return;
@@ -1137,12 +1138,13 @@ fn same_plan(a: &crate::trellis::Plan, b: &crate::trellis::Plan) -> bool {
 /// The trellis reading replaces the edge-based one only when it holds more full frames, or as
 /// many with fewer corrected bits: on clean bursts the edge-based reading keeps its
 /// sub-sample edges.
-/// A reading of one frame only must span at least half the burst: a burst that is mostly
-/// noise marks (a wide channel near the floor makes hundreds a second) can be sliced into one
-/// long frame of nearly any code — measured: 280-bit PPM "codes" of one frame inside 0.9 s
-/// bursts of 1 000 noise marks at Eu/N0 = 14 dB. (Counting marks instead rejected a clean
-/// frame whose marks the first pass had split.) Repeated frames must agree, so they need no
-/// such check.
+/// A reading of one frame only must hold at least half its burst's marks, once the burst's
+/// glitches are merged: a burst that is mostly noise marks (a wide channel near the floor
+/// makes hundreds a second) can be sliced into one long frame of nearly any code — measured:
+/// 280-bit PPM "codes" of one frame inside 0.9 s bursts of 1 000 noise marks at Eu/N0 =
+/// 14 dB. (Raw marks rejected a clean 8-bit frame whose marks the first pass had split; the
+/// frame's share of the burst's duration kept the noise codes.) Repeated frames must agree,
+/// so they need no such check.
 fn explains_its_burst(p: &PressDecode, burst: &Burst) -> bool {
     match p.frames.as_slice() {
         [only] => {
