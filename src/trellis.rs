@@ -1447,14 +1447,14 @@ mod tests {
         assert!(fit < 0.5, "{fit}");
         // The amplitude under the marks is the carrier's; marks stretched by two samples
         // either side dilute it, their interiors do not.
-        let a = right.mark_amplitude(ev, 0.0).unwrap();
+        let a = right.mark_amplitude(ev, 0.0).expect("marks");
         assert!((a - 1.0).abs() < 0.05, "{a}");
         let mut wide = right.clone();
         for m in wide.marks.iter_mut() {
             *m = (m.0 - 2.0, m.1 + 2.0);
         }
-        let whole = wide.mark_amplitude(ev, 0.0).unwrap();
-        let inner = wide.mark_amplitude(ev, 0.125).unwrap();
+        let whole = wide.mark_amplitude(ev, 0.0).expect("marks");
+        let inner = wide.mark_amplitude(ev, 0.125).expect("marks");
         assert!(whole < 0.93, "{whole}");
         assert!((inner - 1.0).abs() < 0.05, "{inner}");
         // Per-sample evidence has no amplitude to measure.
