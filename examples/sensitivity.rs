@@ -37,6 +37,7 @@
 //!   the facts.md §4.2 table values.
 //!
 //! The machine is shared, so run time varies; the success figures do not (seeded).
+//! `SENSITIVITY_SHOW_WRONG=1` prints every wrong code beside the truth to standard error.
 
 use std::f64::consts::TAU;
 use std::path::{Path, PathBuf};
@@ -351,6 +352,12 @@ fn score_ooksift(code: Code, rep: &DecodeReport, truth: &str) -> OokOutcome {
             credited += c.frames;
         } else {
             wrong_codes += 1;
+            if std::env::var_os("SENSITIVITY_SHOW_WRONG").is_some() {
+                eprintln!(
+                    "wrong code {} {} (x{}) for {truth}",
+                    c.line_code, c.bits, c.frames
+                );
+            }
         }
         for p in &c.timeline {
             for f in &p.frames {

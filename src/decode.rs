@@ -622,7 +622,14 @@ impl Decoder {
             .map(|r| (r.0, r.1, r.2));
         let fitted: Vec<(crate::trellis::Plan, &crate::trellis::PlanReading)> = ranked
             .into_iter()
-            .map(|(_, plan, reading)| (crate::trellis::fit_unit(ev, &plan, 0.15, 0.025).0, reading))
+            .map(|(_, plan, reading)| {
+                let ev = if whole_marks_for(&plan) {
+                    ev
+                } else {
+                    crate::trellis::Evidence::Llr(&llr)
+                };
+                (crate::trellis::fit_unit(ev, &plan, 0.15, 0.025).0, reading)
+            })
             .collect();
         // Plans compete by the likelihood of their best readings.
         let mut best: Option<(f64, PressDecode)> = None;
@@ -777,30 +784,49 @@ impl Decoder {
         };
         // The free search at the fitted unit: its fit gates the exact searches, its modal
         // length is one of theirs.
+        // Whole marks for codes whose symbols differ in their marks; the look's llr for the
+        // rest (see `whole_marks_for`).
+        let win = &TrellisWindow {
+            ev: if whole_marks_for(&env_plan) {
+                win.ev
+            } else {
+                crate::trellis::Evidence::Llr(llr)
+            },
+            ..*win
+        };
         let free = crate::trellis::segment(win.ev, &env_plan);
         // Whole-mark scores rest on the carrier's amplitude, which the look's levels
         // underestimate for short marks (its boxcar ramps over half a unit at each edge): the
         // searches from here on assume the amplitude measured inside the free reading's
-        // marks, and the fits the one under its whole marks (what a right reading's own
-        // marks hold), each within a factor of two of the look's.
-        let (ev, ev_search, free) = match win.ev {
+        // marks, within half and twice the look's. The fits hold the marks to the amplitude
+        // under the free reading's whole marks (what a right reading's marks hold), but count
+        // dead marks and lit spaces against at least the look's: a reading whose marks hold
+        // less has laid some on noise, and measured from them, the amplitude would pass them.
+        let (ev, ev_search, own, free) = match win.ev {
             crate::trellis::Evidence::Coherent { amplitude, .. } => {
-                let near = |a: f64| a.clamp(amplitude / 2.0, amplitude * 2.0);
                 match (
                     free.mark_amplitude(win.ev, 0.0),
                     free.mark_amplitude(win.ev, MARK_TRIM),
                 ) {
                     (Some(whole), Some(inner)) => {
-                        let ev_search = win.ev.with_amplitude(near(inner));
+                        let ev_search = win
+                            .ev
+                            .with_amplitude(inner.clamp(amplitude / 2.0, amplitude * 2.0));
                         let free = crate::trellis::segment(ev_search, &env_plan);
-                        (win.ev.with_amplitude(near(whole)), ev_search, free)
+                        let own = whole.clamp(amplitude / 2.0, amplitude * 2.0);
+                        (
+                            win.ev.with_amplitude(own.max(amplitude)),
+                            ev_search,
+                            Some(own),
+                            free,
+                        )
                     }
-                    _ => (win.ev, win.ev, free),
+                    _ => (win.ev, win.ev, None, free),
                 }
             }
-            _ => (win.ev, win.ev, free),
+            _ => (win.ev, win.ev, None, free),
         };
-        let free_fit = free.fit_to(ev, win.half);
+        let free_fit = free.fit_to(ev, win.half, own);
         if std::env::var_os("OOKSIFT_DEBUG").is_some() {
             eprintln!(
                 "  trellis free {line_code} unit {:.1}: {} frames, fit {free_fit:.2}",
@@ -828,6 +854,7 @@ impl Decoder {
         // readings need repeats that agree.
         let mut best: Option<(f64, PressDecode)> = None;
         let rank = |score: f64, p: &PressDecode| (p.frames.len(), score);
+        let mut best_llr = 0.0;
         for n in lengths {
             let r = crate::trellis::segment_frames(ev_search, &env_plan, Some(n));
             if std::env::var_os("OOKSIFT_DEBUG").is_some() {
@@ -840,14 +867,17 @@ impl Decoder {
                     r.frames.len()
                 );
             }
-            let fit = r.fit_to(ev, win.half);
+            let fit = r.fit_to(ev, win.half, own);
             if std::env::var_os("OOKSIFT_DEBUG").is_some() {
                 eprintln!("    fit {fit:.2} (on the look {:.2})", r.fit(llr, win.half));
                 for f in &r.frames {
                     eprintln!("    frame {}", frames::bit_string(&f.bits));
                 }
             }
-            if fit < MIN_TRELLIS_FIT {
+            // A whole-mark reading must also lie on the look, loosely: marks laid on noise
+            // peaks as often as on the carrier (a PPM code read as a train of short symbols)
+            // fit the whole-mark amplitudes they set themselves.
+            if fit < MIN_TRELLIS_FIT || (own.is_some() && r.fit(llr, win.half) < MIN_LOOK_FIT) {
                 continue;
             }
             if let Some(p) = build(&r.marks).filter(|p| p.frames.len() >= 2) {
@@ -856,10 +886,12 @@ impl Decoder {
                     .is_none_or(|b| rank(r.score, &p) > rank(b.0, &b.1))
                 {
                     best = Some((r.score, p));
+                    best_llr = llr_score(llr, &r);
                 }
             }
         }
-        best
+        // Plans compete on the look's likelihood, whatever their searches read.
+        best.map(|b| (best_llr, b.1))
     }
 
     fn route_marks(&mut self) {
@@ -1196,6 +1228,35 @@ const COHERENT_SEGMENT_UNITS: f64 = 24.0;
 /// marks gave frame success 0.33 and 0.74; scaled by 1.1 and 1.2, 0.42/0.78 and 0.42/0.80;
 /// trimmed by an eighth, 0.41/0.77 (whole-mark scores off: 0.38/0.78).
 const MARK_TRIM: f64 = 0.125;
+
+/// Whether the trellis reads `plan` on whole marks ([`crate::trellis::Evidence::Coherent`])
+/// when a channel's samples are at hand: when its symbols differ in their marks (PWM). Where
+/// they differ only in their spaces (PPM), whole marks read as many frames in the sensitivity
+/// sweep (12/13 dB: 0.385/0.829 against 0.378/0.816) but made twice the wrong codes (32
+/// against 14 of 200 presses at 12 dB, most a short symbol inserted before each frame's
+/// first), so PPM keeps the look's per-sample llr.
+fn whole_marks_for(plan: &crate::trellis::Plan) -> bool {
+    let marks = plan.symbols.iter().map(|s| s.mark);
+    let (lo, hi) = marks.fold((f64::MAX, f64::MIN), |(lo, hi), m| (lo.min(m), hi.max(m)));
+    hi - lo >= 0.5
+}
+
+/// The look's log-likelihood ratio of a reading: the sum of `llr` under its marks.
+fn llr_score(llr: &[f32], r: &crate::trellis::Reading) -> f64 {
+    r.marks
+        .iter()
+        .map(|&(a, b)| {
+            let (a, b) = ((a as usize).min(llr.len()), (b as usize).min(llr.len()));
+            llr[a..b.max(a)].iter().map(|&v| v as f64).sum::<f64>()
+        })
+        .sum()
+}
+
+/// Lowest fit on the look ([`crate::trellis::Reading::fit`]) of a whole-mark reading (whose own
+/// fit is [`crate::trellis::Reading::fit_to`]). Measured on seeded captures near the floor (PWM
+/// 10 dB, PPM 11 and 12 dB): right readings 0.77–1.0, trains of short symbols laid over PPM
+/// codes 0.54–0.67; any bound from 0.6 to 0.75 kept every right code and removed those.
+const MIN_LOOK_FIT: f64 = 0.7;
 
 /// Lowest fit of a trellis reading: the mean log-likelihood ratio under its marks, and minus
 /// that under the spaces inside its frames, as a fraction of half the level difference (1 for

@@ -249,7 +249,7 @@ pub fn ln_i0(x: f64) -> f64 {
                         + t * (0.009_162_81
                             + t * (-0.020_577_06
                                 + t * (0.026_355_37 + t * (-0.016_476_33 + t * 0.003_923_77)))))));
-        x - 0.5 * x.ln() + p.ln()
+        x + (p / x.sqrt()).ln()
     }
 }
 
@@ -743,14 +743,23 @@ impl Reading {
         (on / n_on as f64).min(-off / n_off.max(1) as f64) / half
     }
 
-    /// [`Reading::fit`] on whatever the reading was searched in: for
-    /// [`Evidence::Coherent`], the carrier amplitude under its marks and under the spaces
-    /// inside its frames, each estimated from their sums `S` of `N` samples as
-    /// `√(Σ(|S|² − N·σ²) / ΣN²)` (the noise's share of `|S|²` taken out), against half the
-    /// amplitude `A`: `min(a_marks − A/2, A/2 − a_spaces) / (A/2)`. Scoring the reading on the
-    /// per-sample look instead would mark it down wherever that noisier look dips inside a
-    /// mark the whole-mark search rightly laid there. `half` is the llr's (see [`Reading::fit`]).
-    pub fn fit_to(&self, ev: Evidence<'_>, half: f64) -> f64 {
+    /// [`Reading::fit`] on whatever the reading was searched in. For [`Evidence::Coherent`]
+    /// with amplitude `A`: the smallest of
+    ///
+    /// * `(a_marks − A'/2) / (A'/2)`, `a_marks = Σ|S| / ΣN` over the sums `S` of `N` samples of
+    ///   its marks, `A'` = `own` (the amplitude its marks are expected to hold) or `A`;
+    /// * `(A/2 − a_spaces) / (A/2)`, `a_spaces` the same over the spaces inside its frames less
+    ///   what noise alone gives a sum of that length on average (Rayleigh: `√(π·N·σ²/4)`, `σ²`
+    ///   measured in the reading's idle stretches: before, between and after its frames);
+    /// * `1 − 2·w`, `w` the larger of the shares of its marks' pieces (each mark cut into
+    ///   pieces of about its shortest mark) below `A/4` and of its spaces above `3A/4` — a few
+    ///   spaces full of carrier (a header read as short symbols), marks on noise, or long marks
+    ///   laid across two short ones and the space between hardly move the averages.
+    ///
+    /// Scoring a whole-mark reading on the per-sample look instead would mark it down wherever
+    /// that noisier look dips inside a mark the search rightly laid there. `half` is the llr's
+    /// (see [`Reading::fit`]).
+    pub fn fit_to(&self, ev: Evidence<'_>, half: f64, own: Option<f64>) -> f64 {
         let (iq, amplitude, noise_power) = match ev {
             Evidence::Llr(llr) => return self.fit(llr, half),
             Evidence::Coherent {
@@ -816,17 +825,25 @@ impl Reading {
         let (mut marks, mut dead, mut spaces, mut lit) = (0usize, 0usize, 0usize, 0usize);
         self.each_interval(|a, b, mark| {
             let (s2, n) = sum(a, b);
-            let level = if n > 0.0 { s2.sqrt() / n } else { 0.0 };
             if mark {
                 on += s2.sqrt();
                 n_on += n;
-                marks += 1;
-                dead += usize::from(level < amplitude / 4.0);
+                // Piece by piece, about a shortest mark each: a long mark laid across two
+                // short ones and the space between them holds a piece without carrier.
+                let k = ((b.saturating_sub(a)) as f64 / piece as f64)
+                    .round()
+                    .max(1.0) as usize;
+                for i in 0..k {
+                    let (x, y) = (a + (b - a) * i / k, a + (b - a) * (i + 1) / k);
+                    let (p2, pn) = sum(x, y);
+                    marks += 1;
+                    dead += usize::from(pn == 0.0 || p2.sqrt() / pn < amplitude / 4.0);
+                }
             } else {
                 off += s2.sqrt() - (std::f64::consts::PI * n * noise_power / 4.0).sqrt();
                 n_off += n;
                 spaces += 1;
-                lit += usize::from(level > 0.75 * amplitude);
+                lit += usize::from(n > 0.0 && s2.sqrt() / n > 0.75 * amplitude);
             }
         });
         if amplitude.is_nan() || amplitude <= 0.0 || n_on == 0.0 {
@@ -835,13 +852,17 @@ impl Reading {
         let a_on = on / n_on;
         let a_off = off / n_off.max(1.0);
         let h = amplitude / 2.0;
+        let h_own = own.filter(|a| *a > 0.0).map_or(h, |a| a / 2.0);
         let wrong = (dead as f64 / marks.max(1) as f64).max(lit as f64 / spaces.max(1) as f64);
         if std::env::var_os("OOKSIFT_DEBUG").is_some() {
             eprintln!(
-                "    whole-mark fit: amplitude {amplitude:.4}, marks {a_on:.4}, spaces {a_off:.4}, noise {noise_power:.6}; {dead} of {marks} marks dead, {lit} of {spaces} spaces lit"
+                "    whole-mark fit: amplitude {amplitude:.4} (own {:.4}), marks {a_on:.4}, spaces {a_off:.4}, noise {noise_power:.6}; {dead} of {marks} mark pieces dead, {lit} of {spaces} spaces lit",
+                2.0 * h_own
             );
         }
-        ((a_on - h).min(h - a_off) / h).min(1.0 - 2.0 * wrong)
+        ((a_on - h_own) / h_own)
+            .min((h - a_off) / h)
+            .min(1.0 - 2.0 * wrong)
     }
 
     /// The carrier amplitude under the marks of the reading's frames, `Σ|S| / ΣN` over their
@@ -1436,14 +1457,14 @@ mod tests {
         };
         let right = segment(ev, &pwm_plan(16.0));
         assert_eq!(right.frames.len(), 3);
-        let fit = right.fit_to(ev, 0.5);
+        let fit = right.fit_to(ev, 0.5, None);
         assert!(fit > 0.95, "{fit}");
         // Every 1 read as a 0: a unit of carrier, then a "space" holding two more.
         let mut ones_cut = right.clone();
         for m in ones_cut.marks.iter_mut().filter(|m| m.1 - m.0 > 32.0) {
             m.1 = m.0 + 16.0;
         }
-        let fit = ones_cut.fit_to(ev, 0.5);
+        let fit = ones_cut.fit_to(ev, 0.5, None);
         assert!(fit < 0.5, "{fit}");
         // The amplitude under the marks is the carrier's; marks stretched by two samples
         // either side dilute it, their interiors do not.
