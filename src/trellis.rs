@@ -253,6 +253,18 @@ pub fn ln_i0(x: f64) -> f64 {
     }
 }
 
+/// `|Σ iq[a..b]|` (ends clamped to `iq`) and the number of samples summed.
+fn coherent_sum(iq: &[num_complex::Complex32], a: usize, b: usize) -> (f64, usize) {
+    let (a, b) = (a.min(iq.len()), b.min(iq.len()));
+    let b = b.max(a);
+    let s = iq[a..b]
+        .iter()
+        .fold(num_complex::Complex64::new(0.0, 0.0), |acc, z| {
+            acc + num_complex::Complex64::new(z.re as f64, z.im as f64)
+        });
+    (s.norm_sqr().sqrt(), b - a)
+}
+
 /// The score of a mark from grid position `a` to `b` (exclusive).
 trait MarkScores {
     fn mark(&self, a: usize, b: usize) -> f32;
@@ -769,14 +781,8 @@ impl Reading {
             } => (iq, amplitude, noise_power),
         };
         let sum = |a: usize, b: usize| -> (f64, f64) {
-            let (a, b) = (a.min(iq.len()), b.min(iq.len()));
-            let b = b.max(a);
-            let s = iq[a..b]
-                .iter()
-                .fold(num_complex::Complex64::new(0.0, 0.0), |acc, z| {
-                    acc + num_complex::Complex64::new(z.re as f64, z.im as f64)
-                });
-            (s.norm_sqr(), (b - a) as f64)
+            let (s, n) = coherent_sum(iq, a, b);
+            (s * s, n as f64)
         };
         // σ² from the reading's own idle stretches (before, between and after its frames,
         // a shortest mark clear of them), cut into pieces of a shortest mark: the noise
@@ -817,10 +823,9 @@ impl Reading {
         };
         // Σ|S| and ΣN of marks, and of spaces less what noise alone gives a sum's
         // magnitude on average (Rayleigh: √(π·N·σ²/4)), so spaces of noise read 0 whatever
-        // their length. Marks are not corrected: a carrier's sum is far above its noise. And
-        // the marks that read below a quarter of the amplitude and the spaces above three
-        // quarters: a few spaces full of carrier (a header read as short symbols) hardly
-        // move the averages.
+        // their length (marks are not corrected: a carrier's sum is far above its noise); and
+        // the counts of mark pieces below a quarter of the amplitude and of spaces above three
+        // quarters.
         let (mut on, mut n_on, mut off, mut n_off) = (0.0f64, 0.0f64, 0.0f64, 0.0f64);
         let (mut marks, mut dead, mut spaces, mut lit) = (0usize, 0usize, 0usize, 0usize);
         self.each_interval(|a, b, mark| {
@@ -881,15 +886,10 @@ impl Reading {
         let (mut on, mut n_on) = (0.0f64, 0usize);
         self.each_interval(|a, b, mark| {
             let cut = ((b.saturating_sub(a)) as f64 * trim).round() as usize;
-            let (a, b) = ((a + cut).min(iq.len()), b.saturating_sub(cut).min(iq.len()));
-            if mark && b > a {
-                let s = iq[a..b]
-                    .iter()
-                    .fold(num_complex::Complex64::new(0.0, 0.0), |acc, z| {
-                        acc + num_complex::Complex64::new(z.re as f64, z.im as f64)
-                    });
-                on += s.norm_sqr().sqrt();
-                n_on += b - a;
+            if mark {
+                let (s, n) = coherent_sum(iq, a + cut, b.saturating_sub(cut));
+                on += s;
+                n_on += n;
             }
         });
         (n_on > 0).then(|| on / n_on as f64)
