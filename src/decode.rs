@@ -528,7 +528,8 @@ impl Decoder {
         // The search reads the burst integrated coherently over half a unit when the
         // channel's samples are at hand (a narrower look than the channel's own envelope,
         // module `front::coherent`), else the envelope itself.
-        let look = self.coherent_look(lo, hi, first_unit);
+        let coherent = self.coherent_look(lo, hi, first_unit);
+        let look = coherent.as_ref().map(|c| &c.look[..]);
         let (look_idle, look_carrier) = match &look {
             Some(m) => {
                 let (i, c, _) = two_levels(m, level_half)?;
@@ -537,12 +538,7 @@ impl Decoder {
             None => (idle, carrier),
         };
         let mid = (look_idle + 0.5 * (look_carrier - look_idle)) as f32;
-        let llr: Vec<f32> = look
-            .as_deref()
-            .unwrap_or(env)
-            .iter()
-            .map(|&x| x - mid)
-            .collect();
+        let llr: Vec<f32> = look.unwrap_or(env).iter().map(|&x| x - mid).collect();
         if std::env::var_os("OOKSIFT_DEBUG").is_some() {
             eprintln!(
                 "  trellis levels idle {idle:.4} carrier {carrier:.4} spread {spread:.4}; searched {} idle {look_idle:.4} carrier {look_carrier:.4}",
@@ -554,11 +550,8 @@ impl Decoder {
         // the carrier turned to zero frequency, its amplitude and the noise of a sum of
         // samples from the look's levels (the idle level of a boxcar mean of `len` samples is
         // Rayleigh: √(π·σ²/(4·len))). The look's per-sample ratios stay for the fits.
-        let centred = look
-            .as_ref()
-            .and_then(|_| self.centred_carrier(lo, hi, first_unit));
-        let ev = match (&centred, look.as_ref()) {
-            (Some((iq, len)), Some(_)) if std::env::var_os("OOKSIFT_NO_WHOLE_MARKS").is_none() => {
+        let ev = match &coherent {
+            Some(c) if std::env::var_os("OOKSIFT_NO_WHOLE_MARKS").is_none() => {
                 // Power of the noise in a boxcar mean, and the carrier's amplitude under it:
                 // a Rician magnitude's mean is about √(A² + σ²/2) when A ≫ σ.
                 let boxcar_noise = 4.0 * look_idle * look_idle / std::f64::consts::PI;
@@ -566,9 +559,9 @@ impl Decoder {
                     .max(look_carrier * look_carrier / 4.0)
                     .sqrt();
                 crate::trellis::Evidence::Coherent {
-                    iq,
+                    iq: &c.centred,
                     amplitude,
-                    noise_power: *len as f64 * boxcar_noise,
+                    noise_power: c.len as f64 * boxcar_noise,
                 }
             }
             _ => crate::trellis::Evidence::Llr(&llr),
@@ -661,10 +654,10 @@ impl Decoder {
         best.map(|b| b.1)
     }
 
-    /// The channel's samples `lo..hi` of the history integrated coherently over
-    /// [`COHERENT_UNITS`] of a `unit` (envelope samples), aligned with the envelope; `None`
-    /// for the whole band, or when the history holds no channel samples there.
-    fn coherent_look(&self, lo: usize, hi: usize, unit: f64) -> Option<Vec<f32>> {
+    /// The channel's samples `lo..hi` of the history, aligned with the envelope, as the
+    /// trellis reads them ([`CoherentLook`]); `None` for the whole band, or when the history
+    /// holds no channel samples there.
+    fn coherent_look(&self, lo: usize, hi: usize, unit: f64) -> Option<CoherentLook> {
         let Front::Channel(ch) = &self.env else {
             return None;
         };
@@ -677,42 +670,17 @@ impl Decoder {
         }
         let len = (COHERENT_UNITS * unit).round().max(1.0) as usize;
         let segment = (COHERENT_SEGMENT_UNITS * unit).round() as usize;
-        Some(crate::front::coherent::coherent_envelope(
+        let (iq, rate, span) = (
             &self.iq_hist[lo..hi],
             ch.plan().out_rate_hz,
-            len,
             ch.plan().bandwidth_hz,
-            segment,
-            ch.smoothing_delay(),
-        ))
-    }
-
-    /// The channel's samples `lo..hi` of the history with the carrier turned to zero
-    /// frequency and aligned with the envelope, and the boxcar length of the look they pair
-    /// with; `None` where [`Self::coherent_look`] is.
-    fn centred_carrier(
-        &self,
-        lo: usize,
-        hi: usize,
-        unit: f64,
-    ) -> Option<(Vec<num_complex::Complex32>, usize)> {
-        let Front::Channel(ch) = &self.env else {
-            return None;
-        };
-        if self.iq_hist.len() < hi || unit.is_nan() || unit < 2.0 {
-            return None;
-        }
-        let len = (COHERENT_UNITS * unit).round().max(1.0) as usize;
-        let segment = (COHERENT_SEGMENT_UNITS * unit).round() as usize;
-        let iq = crate::front::coherent::centred_carrier(
-            &self.iq_hist[lo..hi],
-            ch.plan().out_rate_hz,
-            len,
-            ch.plan().bandwidth_hz,
-            segment,
-            ch.smoothing_delay(),
         );
-        Some((iq, len))
+        use crate::front::coherent::{centred_carrier, coherent_envelope};
+        Some(CoherentLook {
+            look: coherent_envelope(iq, rate, len, span, segment, ch.smoothing_delay()),
+            centred: centred_carrier(iq, rate, len, span, segment, ch.smoothing_delay()),
+            len,
+        })
     }
 
     /// One trellis search of `burst` under `plan` (capture samples) in the window `win`.
@@ -1145,6 +1113,16 @@ fn better(a: Option<PressDecode>, b: Option<PressDecode>) -> Option<PressDecode>
         }
         (a, b) => a.or(b),
     }
+}
+
+/// A channel's burst as the trellis reads it.
+struct CoherentLook {
+    /// Magnitudes integrated coherently over [`COHERENT_UNITS`] of a unit (`len` samples):
+    /// plans are ranked on it and fits checked against it.
+    look: Vec<f32>,
+    /// The samples with the carrier turned to zero frequency: whole-mark searches read them.
+    centred: Vec<num_complex::Complex32>,
+    len: usize,
 }
 
 /// The envelope window of one burst the trellis searches, with its levels.
