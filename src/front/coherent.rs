@@ -16,6 +16,11 @@
 //! peak search of the boxcar's spectrum, the maximum-likelihood estimate of a tone's frequency
 //! on that grid. A quarter-lobe grid loses at most sinc(1/8) ≈ 0.975 of the amplitude.
 //!
+//! [`centred_carrier`] goes one step further for the trellis's whole-mark scores: it returns
+//! the samples themselves with the carrier turned to zero frequency (a finer offset per
+//! segment, pooled with its neighbours, phase continuous), so a mark of any length can be
+//! summed coherently as a whole.
+//!
 //! ```
 //! use num_complex::Complex32;
 //! use ooksift::front::coherent::coherent_envelope;
@@ -123,7 +128,8 @@ pub fn coherent_envelope(
     out
 }
 
-/// `iq` with its carrier turned to zero frequency, for the whole-mark scores of
+/// `iq` with its carrier turned to zero frequency (offsets searched across `±span_hz / 2`, at
+/// most 64 grid steps either side), for the whole-mark scores of
 /// [`crate::trellis::Evidence::Coherent`]; sample `k` of the result is `iq[k − shift]` (0
 /// outside `iq`), so it lines up with an envelope lagging its samples by `shift`.
 ///
@@ -150,7 +156,7 @@ pub fn centred_carrier(
     let segment = segment.max(1);
     let step = rate_hz / (8.0 * long as f64);
     let half = if span_hz.is_finite() && span_hz > 0.0 {
-        ((span_hz / 2.0 / step).ceil() as usize).min(256)
+        ((span_hz / 2.0 / step).ceil() as usize).min(64)
     } else {
         0
     };
