@@ -124,3 +124,18 @@ fn the_coherent_look_reads_more_frames_of_a_weak_press_than_the_envelope() {
     assert!(with >= without + 10, "coherent {with}, envelope {without}");
     assert!(with >= 40, "coherent look credited {with} of 64 frames");
 }
+
+#[test]
+fn whole_marks_read_more_frames_of_a_weak_pwm_press_than_the_look() {
+    // Truth: the synth truth files. 16 presses of 4 frames at 10 dB, the same code as above,
+    // decoded with whole-mark scores (the default) and with the look's per-sample llr
+    // (OOKSIFT_NO_WHOLE_MARKS); the sensitivity sweep (docs/benchmarks.md §1, "Whole marks")
+    // shows the step over 200 trials a point. Measured when added: 32 and 23 frames.
+    let press = "pwm:0x5a3c96,unit_us=350,repeats=4,offset_hz=100000";
+    let whole = credited(press, "10", 16, &[]);
+    let look = credited(press, "10", 16, &[("OOKSIFT_NO_WHOLE_MARKS", "1")]);
+    assert!(
+        whole >= look + 6,
+        "whole marks {whole}, look {look} of 64 frames"
+    );
+}
