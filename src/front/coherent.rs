@@ -88,20 +88,8 @@ pub fn coherent_envelope(
         let mut best_energy = -1.0f64;
         best.clear();
         for j in -(half as i64)..=half as i64 {
-            let w = -std::f64::consts::TAU * j as f64 * step / rate_hz;
-            let rot = Complex64::from_polar(1.0, w);
-            let mut ph = Complex64::from_polar(1.0, w * lo as f64);
-            prefix.clear();
-            prefix.push(Complex64::new(0.0, 0.0));
-            let mut acc = Complex64::new(0.0, 0.0);
-            for (i, z) in iq[lo..hi].iter().enumerate() {
-                acc += Complex64::new(z.re as f64, z.im as f64) * ph;
-                prefix.push(acc);
-                ph *= rot;
-                if i % 1024 == 1023 {
-                    ph /= ph.norm();
-                }
-            }
+            // (The phase at `lo` is arbitrary: a window's magnitude does not depend on it.)
+            rotated_prefix(iq, lo, hi, j as f64 * step, rate_hz, &mut prefix);
             mags.clear();
             let mut energy = 0.0f64;
             for k in s..e {
