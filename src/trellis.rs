@@ -89,7 +89,7 @@ const COARSE_STEPS_PER_UNIT: f64 = 4.0;
 /// Fewest grid steps per unit the search accepts.
 const MIN_STEPS_PER_UNIT: f64 = 3.0;
 /// Largest search table (states × grid positions); a burst needing more is left to the
-/// edge-based readings. 1 M cells are 12 MB.
+/// edge-based readings. 1 M cells are 8 MB (a score and a back-pointer code each).
 pub const MAX_CELLS: usize = 1 << 20;
 
 /// Back-pointer: which state and position a state was reached from.
@@ -126,16 +126,6 @@ impl States {
     }
     fn count(&self) -> usize {
         3 + self.k + 1 + self.symbols * self.k
-    }
-    /// Bit count after one more symbol from B_k, if allowed.
-    fn next(&self, k: usize) -> Option<usize> {
-        if k < self.k {
-            Some(k + 1)
-        } else if self.open {
-            Some(self.k)
-        } else {
-            None
-        }
     }
 }
 
@@ -454,7 +444,46 @@ impl Grid {
     }
 }
 
+/// How a cell of the search was reached, one `u32` per cell (a third of the table's bytes):
+/// the state it came from follows from the cell's own state (see [`search_grid`]), so the
+/// code holds only the length in grid steps of the element that led to it, the symbol of a
+/// `B_k` state's predecessor `E_{s,k}` above [`SYMBOL_SHIFT`], and [`FROM_FULL`] for an
+/// `E_{s,k}` state of an open frame reached from `B_k` rather than `B_{k−1}`. Frame starts
+/// (state A) keep full pointers beside the table.
+type Code = u32;
+/// Codes of cells never reached.
+const NO_CODE: Code = Code::MAX;
+/// The symbol's bit position in a `B_k` code (lengths stay below 2²⁰ steps: the table holds
+/// at most [`MAX_CELLS`] cells).
+const SYMBOL_SHIFT: u32 = 20;
+/// Flag of an `E_{s,k}` code reached from `B_k`.
+const FROM_FULL: Code = 1 << 31;
+/// Most symbols a plan may have (their index must fit above [`SYMBOL_SHIFT`]).
+const MAX_SYMBOLS: usize = 1 << 11;
+
+/// `dst[i] = max(dst[i], src[i] + add)`, noting `code` where it rises — the step of the search
+/// that moves every bit count at once (written branch-free so it vectorises).
+#[inline(always)]
+fn relax_run(src: &[f32], add: f32, dst: &mut [f32], codes: &mut [Code], code: Code) {
+    for ((d, c), &s) in dst.iter_mut().zip(codes.iter_mut()).zip(src) {
+        let v = s + add;
+        // All ones where `v` rises above the cell, as integer masks: branches here are taken
+        // at random on noise, and a select written as one compiles to a branch.
+        let rise = ((v > *d) as Code).wrapping_neg();
+        *d = f32::from_bits((v.to_bits() & rise) | (d.to_bits() & !rise));
+        *c = (code & rise) | (*c & !rise);
+    }
+}
+
 /// The search proper on a grid of `n` steps (`samples` samples).
+///
+/// The table holds one row of [`States`] per grid position. Each position first settles its
+/// frame start (A), then pushes every element that can begin there into the rows where it
+/// ends: a header mark (A → H), a header space (H → B₀), a data symbol's space
+/// (E_{s,k} → B_k), a data symbol's mark (B_k → E_{s,k+1}) and the closing mark (B_K → C).
+/// The symbol steps move all bit counts at once, as runs of consecutive states. A cell keeps
+/// the first of equal candidates, in the order: position, then element kind as listed, then
+/// symbol, then length.
 fn search_grid<M: MarkScores>(
     scores: &M,
     grid: &Grid,
@@ -464,23 +493,50 @@ fn search_grid<M: MarkScores>(
     samples: usize,
 ) -> Reading {
     let ns = st.count();
+    if st.symbols >= MAX_SYMBOLS {
+        return Reading::default();
+    }
     let bin = grid.bin;
     let gap_min = grid.gap_min;
+    let k_max = st.k;
     let neg = f32::NEG_INFINITY;
     let mut score = vec![neg; ns * (n + 1)];
-    let mut back = vec![NONE; ns * (n + 1)];
+    let mut codes = vec![NO_CODE; ns * (n + 1)];
+    // Where each frame start came from: the end of the previous frame, or nothing.
+    let mut starts = vec![NONE; n + 1];
     let idx = |state: usize, pos: usize| pos * ns + state;
-    let mark_score = |a: usize, b: usize| scores.mark(a, b);
-    let relax = |score: &mut [f32], back: &mut [Back], to: usize, v: f32, from: Back| {
-        if v > score[to] {
-            score[to] = v;
-            back[to] = from;
-        }
-    };
     let at = |state: usize, pos: usize| Back {
         state: state as u16,
         pos: pos as u32,
     };
+    // One candidate into one cell.
+    let relax = |score: &mut [f32], codes: &mut [Code], to: usize, v: f32, code: Code| {
+        if v > score[to] {
+            score[to] = v;
+            codes[to] = code;
+        }
+    };
+    // Row `t` to read and row `t + len` to write (`len ≥ 1`).
+    fn rows<'s>(
+        score: &'s mut [f32],
+        codes: &'s mut [Code],
+        ns: usize,
+        t: usize,
+        len: usize,
+    ) -> (&'s [f32], &'s mut [f32], &'s mut [Code]) {
+        let (head, tail) = score.split_at_mut((t + 1) * ns);
+        let to = (len - 1) * ns..len * ns;
+        (
+            &head[t * ns..],
+            &mut tail[to.clone()],
+            &mut codes[(t + len) * ns..(t + len + 1) * ns],
+        )
+    }
+    // Consecutive runs of states: B₀…B_{K−1} (read by the marks), B₁…B_K (written by the
+    // spaces), and E_{s,1}…E_{s,K} per symbol.
+    let b_from = st.b(0)..st.b(0) + k_max;
+    let b_to = st.b(1)..st.b(1) + k_max;
+    let e_run = |s: usize| st.e(s, 1)..st.e(s, 1) + k_max;
 
     // States after which a frame may end: the closing mark's end when the plan has one,
     // otherwise the end of a last data mark (its space runs into the gap).
@@ -494,6 +550,7 @@ fn search_grid<M: MarkScores>(
     let mut best_end = (neg, NONE);
     let mut best_final = (0.0f32, NONE);
     let (closing, header, syms) = (grid.closing, grid.header, &grid.syms);
+    let len_code = |len: usize| len as Code;
 
     for t in 0..=n {
         if t >= gap_min {
@@ -512,21 +569,22 @@ fn search_grid<M: MarkScores>(
             (0.0, NONE)
         };
         score[idx(States::A, t)] = a;
-        back[idx(States::A, t)] = from;
+        starts[t] = from;
         match header {
             Some(((m0, m1), _)) => {
                 for len in m0..=m1.min(n - t) {
-                    let v = a + mark_score(t, t + len);
+                    let v = a + scores.mark(t, t + len);
                     relax(
                         &mut score,
-                        &mut back,
+                        &mut codes,
                         idx(States::H, t + len),
                         v,
-                        at(States::A, t),
+                        len_code(len),
                     );
                 }
             }
-            None => relax(&mut score, &mut back, idx(st.b(0), t), a, at(States::A, t)),
+            // B₀ from A at the same position: length 0.
+            None => relax(&mut score, &mut codes, idx(st.b(0), t), a, 0),
         }
         if let Some((_, (s0, s1))) = header {
             let h = score[idx(States::H, t)];
@@ -534,65 +592,68 @@ fn search_grid<M: MarkScores>(
                 for len in s0..=s1.min(n - t) {
                     relax(
                         &mut score,
-                        &mut back,
+                        &mut codes,
                         idx(st.b(0), t + len),
                         h,
-                        at(States::H, t),
+                        len_code(len),
                     );
                 }
             }
         }
-        // E_{s,k}: the symbol's space leads to the next symbol.
+        // E_{s,k} → B_k: the symbol's space leads to the next symbol.
         for (s, &(_, (s0, s1))) in syms.iter().enumerate() {
-            for k in 1..=st.k {
-                let e = score[idx(st.e(s, k), t)];
-                if e == neg {
-                    continue;
-                }
-                for len in s0..=s1.min(n - t) {
+            let code = (s as Code) << SYMBOL_SHIFT;
+            for len in s0..=s1.min(n - t) {
+                let (src, dst, dst_codes) = rows(&mut score, &mut codes, ns, t, len);
+                relax_run(
+                    &src[e_run(s)],
+                    0.0,
+                    &mut dst[b_to.clone()],
+                    &mut dst_codes[b_to.clone()],
+                    code | len_code(len),
+                );
+            }
+        }
+        // B_k → E_{s,k+1}: a data symbol's mark; in open frames also B_K → E_{s,K}.
+        for (s, &((m0, m1), _)) in syms.iter().enumerate() {
+            for len in m0..=m1.min(n - t) {
+                let m = scores.mark(t, t + len);
+                let (src, dst, dst_codes) = rows(&mut score, &mut codes, ns, t, len);
+                relax_run(
+                    &src[b_from.clone()],
+                    m,
+                    &mut dst[e_run(s)],
+                    &mut dst_codes[e_run(s)],
+                    len_code(len),
+                );
+            }
+        }
+        let full = score[idx(st.b(k_max), t)];
+        if st.open && full > neg {
+            for (s, &((m0, m1), _)) in syms.iter().enumerate() {
+                for len in m0..=m1.min(n - t) {
+                    let v = full + scores.mark(t, t + len);
                     relax(
                         &mut score,
-                        &mut back,
-                        idx(st.b(k), t + len),
-                        e,
-                        at(st.e(s, k), t),
+                        &mut codes,
+                        idx(st.e(s, k_max), t + len),
+                        v,
+                        FROM_FULL | len_code(len),
                     );
                 }
             }
         }
-        // B_k: a data symbol's mark, or (after enough bits) the closing mark.
-        for k in 0..=st.k {
-            let b = score[idx(st.b(k), t)];
-            if b == neg {
-                continue;
-            }
-            if let Some(k1) = st.next(k) {
-                for (s, &((m0, m1), _)) in syms.iter().enumerate() {
-                    for len in m0..=m1.min(n - t) {
-                        let v = b + mark_score(t, t + len);
-                        relax(
-                            &mut score,
-                            &mut back,
-                            idx(st.e(s, k1), t + len),
-                            v,
-                            at(st.b(k), t),
-                        );
-                    }
-                }
-            }
-            if k == st.k {
-                if let Some((m0, m1)) = closing {
-                    for len in m0..=m1.min(n - t) {
-                        let v = b + mark_score(t, t + len);
-                        relax(
-                            &mut score,
-                            &mut back,
-                            idx(States::C, t + len),
-                            v,
-                            at(st.b(k), t),
-                        );
-                    }
-                }
+        // B_K → C: the closing mark.
+        if let (Some((m0, m1)), true) = (closing, full > neg) {
+            for len in m0..=m1.min(n - t) {
+                let v = full + scores.mark(t, t + len);
+                relax(
+                    &mut score,
+                    &mut codes,
+                    idx(States::C, t + len),
+                    v,
+                    len_code(len),
+                );
             }
         }
         for &s in &ends {
@@ -603,9 +664,47 @@ fn search_grid<M: MarkScores>(
         }
     }
 
+    // The state and position a cell was reached from.
+    let first_e = st.e(0, 1);
+    let prev_of = |s: usize, pos: usize| -> Back {
+        if s == States::A {
+            return starts[pos];
+        }
+        let code = codes[idx(s, pos)];
+        if code == NO_CODE {
+            return NONE;
+        }
+        let len = (code & ((1 << SYMBOL_SHIFT) - 1)) as usize;
+        let from = match s {
+            States::H => States::A,
+            States::C => st.b(k_max),
+            _ if s == st.b(0) => {
+                if header.is_some() {
+                    States::H
+                } else {
+                    States::A
+                }
+            }
+            _ if s < first_e => {
+                // B_k from E_{sym,k}.
+                let k = s - st.b(0);
+                st.e(((code & !FROM_FULL) >> SYMBOL_SHIFT) as usize, k)
+            }
+            _ => {
+                // E_{sym,k} from B_{k−1}, or from B_K in an open frame.
+                let k = (s - first_e) % k_max + 1;
+                if code & FROM_FULL != 0 {
+                    st.b(k_max)
+                } else {
+                    st.b(k - 1)
+                }
+            }
+        };
+        at(from, pos - len)
+    };
+
     // Walk back, collecting marks (every transition into H, C or an E state ends one) and
     // frames (a transition into A from a frame end closes one).
-    let first_e = st.e(0, 1);
     let mut marks = Vec::new();
     let mut frames: Vec<FrameSpan> = Vec::new();
     let mut open = FrameSpan::default();
@@ -615,7 +714,7 @@ fn search_grid<M: MarkScores>(
     while cur.state != u16::MAX && guard <= ns * (n + 1) {
         guard += 1;
         let (s, pos) = (cur.state as usize, cur.pos as usize);
-        let prev = back[idx(s, pos)];
+        let prev = prev_of(s, pos);
         if !in_frame && s != States::A {
             in_frame = true;
             open = FrameSpan {
