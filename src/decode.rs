@@ -613,7 +613,12 @@ impl Decoder {
             .into_iter()
             .filter(|r| r.3 || std::env::var_os("OOKSIFT_NO_GATE").is_some())
             .map(|r| (r.0, r.1, r.2));
-        let fitted: Vec<(crate::trellis::Plan, &crate::trellis::PlanReading)> = ranked
+        // Each fitted plan with its free reading at the fitted unit.
+        let fitted: Vec<(
+            crate::trellis::Plan,
+            crate::trellis::Reading,
+            &crate::trellis::PlanReading,
+        )> = ranked
             .into_iter()
             .map(|(_, plan, reading)| {
                 let ev = if whole_marks_for(&plan) {
@@ -621,14 +626,15 @@ impl Decoder {
                 } else {
                     crate::trellis::Evidence::Llr(&llr)
                 };
-                (crate::trellis::fit_unit(ev, &plan, 0.15, 0.025).0, reading)
+                let (plan, free) = crate::trellis::fit_unit(ev, &plan, 0.15, 0.025);
+                (plan, free, reading)
             })
             .collect();
         // Plans compete by the likelihood of their best readings.
         let mut best: Option<(f64, PressDecode)> = None;
-        for (plan, reading) in fitted {
+        for (plan, free, reading) in fitted {
             let r = self
-                .trellis_with(burst, &win, plan, reading.line_code, known_bits)
+                .trellis_with(burst, &win, plan, free, reading.line_code, known_bits)
                 .map(|(score, mut p)| {
                     // The line-code evidence is the widths the plan was read from; the
                     // trellis's own widths fit the plan by construction.
@@ -683,12 +689,14 @@ impl Decoder {
         })
     }
 
-    /// One trellis search of `burst` under `plan` (capture samples) in the window `win`.
+    /// One trellis search of `burst` under `plan` (capture samples) in the window `win`,
+    /// from the free search at the plan's fitted unit (`free`, by [`crate::trellis::fit_unit`]).
     fn trellis_with(
         &self,
         burst: &Burst,
         win: &TrellisWindow<'_>,
         env_plan: crate::trellis::Plan,
+        free: crate::trellis::Reading,
         line_code: coding::LineCode,
         known_bits: Option<usize>,
     ) -> Option<(f64, PressDecode)> {
@@ -762,7 +770,6 @@ impl Decoder {
             },
             ..*win
         };
-        let free = crate::trellis::segment(win.ev, &env_plan);
         // Whole-mark scores rest on the carrier's amplitude, which the look's levels
         // underestimate for short marks (its boxcar ramps over half a unit at each edge): the
         // searches from here on assume the amplitude measured inside the free reading's

@@ -769,32 +769,37 @@ fn search_grid<M: MarkScores>(
 
 /// `plan` with its unit replaced by the one, within `±span` (a fraction) of it to `step`
 /// (coarse steps of `2·step`, then refined), whose free search ([`segment`]) scores best, and
-/// that score: a unit measured from noisy marks is off by several percent, and every frame's
-/// length multiplies the error. (The quarter-unit grid of [`segment_coarse`] is too coarse
-/// here: its slack absorbs a 10 % error in a one-unit mark, so scores tie and the fit strays.)
-pub fn fit_unit<'a>(ev: impl Into<Evidence<'a>>, plan: &Plan, span: f64, step: f64) -> (Plan, f64) {
+/// that search's reading: a unit measured from noisy marks is off by several percent, and
+/// every frame's length multiplies the error. (The quarter-unit grid of [`segment_coarse`] is
+/// too coarse here: its slack absorbs a 10 % error in a one-unit mark, so scores tie and the
+/// fit strays.)
+pub fn fit_unit<'a>(
+    ev: impl Into<Evidence<'a>>,
+    plan: &Plan,
+    span: f64,
+    step: f64,
+) -> (Plan, Reading) {
     let ev = ev.into();
     let with = |unit: f64| Plan {
         unit,
         ..plan.clone()
     };
-    let mut best = (segment(ev, plan).score, plan.unit);
+    let mut best = (segment(ev, plan), plan.unit);
+    let try_unit = |unit: f64, best: &mut (Reading, f64)| {
+        let r = segment(ev, &with(unit));
+        if r.score > best.0.score {
+            *best = (r, unit);
+        }
+    };
     if step > 0.0 && span > 0.0 {
         // Coarse steps of twice `step`, then the two neighbours of the best at `step`.
         let k = (span / (2.0 * step)).round() as i32;
         for i in (-k..=k).filter(|&i| i != 0) {
-            let unit = plan.unit * (1.0 + 2.0 * step * i as f64);
-            let sc = segment(ev, &with(unit)).score;
-            if sc > best.0 {
-                best = (sc, unit);
-            }
+            try_unit(plan.unit * (1.0 + 2.0 * step * i as f64), &mut best);
         }
         let centre = best.1;
         for unit in [centre * (1.0 - step), centre * (1.0 + step)] {
-            let sc = segment(ev, &with(unit)).score;
-            if sc > best.0 {
-                best = (sc, unit);
-            }
+            try_unit(unit, &mut best);
         }
     }
     (with(best.1), best.0)
@@ -1326,8 +1331,10 @@ mod tests {
         }
         // A unit 20 % off, beyond what each element's slack absorbs, is pulled back within
         // it, and the exact search at the fitted unit reads every frame.
-        let (fitted, _) = fit_unit(&llr, &pwm_plan(16.0 * 1.2), 0.15, 0.025);
+        let (fitted, reading) = fit_unit(&llr, &pwm_plan(16.0 * 1.2), 0.15, 0.025);
         assert!((fitted.unit / 16.0 - 1.0).abs() <= 0.1, "{}", fitted.unit);
+        // What it returns is the free search at that unit.
+        assert_eq!(reading, segment(&llr, &fitted));
         let exact = segment_frames(&llr, &fitted, Some(bits.len()));
         assert_eq!(exact.frames.len(), 3);
         for f in &exact.frames {
