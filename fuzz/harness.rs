@@ -156,6 +156,11 @@ pub const CHAIN_RATES: [f64; 8] = [
 /// Bytes → codes. Byte 0 picks the format (the 28 datatypes, or WAV), byte 1 the rate, byte 2
 /// the press gap; the rest is the capture, streamed in short reads. Returns the codes found.
 pub fn decode_chain(data: &[u8]) -> Result<usize, String> {
+    decode_chain_report(data).map(|r| r.codes.len())
+}
+
+/// [`decode_chain`]'s report (checked).
+pub fn decode_chain_report(data: &[u8]) -> Result<DecodeReport, String> {
     if data.len() < 3 {
         return Err("too short".into());
     }
@@ -184,7 +189,7 @@ pub fn decode_chain(data: &[u8]) -> Result<usize, String> {
         .map_err(|e| e.to_string())?;
     let report = decode_source(src.as_mut(), &opts).map_err(|e| e.to_string())?;
     check_report(&report)?;
-    Ok(report.codes.len())
+    Ok(report)
 }
 
 /// Bytes → codes through the per-carrier path `decode_path` takes for IQ files, step by step
@@ -192,6 +197,11 @@ pub fn decode_chain(data: &[u8]) -> Result<usize, String> {
 /// reports), reading the bytes twice as it reads a file twice. Byte 0 picks one of the 14
 /// complex datatypes; bytes 1 and 2 and the rest as in [`decode_chain`].
 pub fn decode_channels(data: &[u8]) -> Result<usize, String> {
+    decode_channels_report(data).map(|r| r.codes.len())
+}
+
+/// [`decode_channels`]'s report (checked).
+pub fn decode_channels_report(data: &[u8]) -> Result<DecodeReport, String> {
     if data.len() < 3 {
         return Err("too short".into());
     }
@@ -239,5 +249,5 @@ pub fn decode_channels(data: &[u8]) -> Result<usize, String> {
         merge_reports(decoders.into_iter().map(Decoder::finish).collect())
     };
     check_report(&report)?;
-    Ok(report.codes.len())
+    Ok(report)
 }
