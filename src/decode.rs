@@ -550,6 +550,10 @@ impl Decoder {
         // the carrier turned to zero frequency, its amplitude and the noise of a sum of
         // samples from the look's levels (the idle level of a boxcar mean of `len` samples is
         // Rayleigh: √(π·σ²/(4·len))). The look's per-sample ratios stay for the fits.
+        // Every search of the burst shares its whole-mark scores.
+        let marks = coherent
+            .as_ref()
+            .map(|c| crate::trellis::MarkCache::new(&c.centred));
         let ev = match &coherent {
             Some(c) if std::env::var_os("OOKSIFT_NO_WHOLE_MARKS").is_none() => {
                 // Power of the noise in a boxcar mean, and the carrier's amplitude under it:
@@ -562,6 +566,7 @@ impl Decoder {
                     iq: &c.centred,
                     amplitude,
                     noise_power: c.len as f64 * boxcar_noise,
+                    shared: marks.as_ref(),
                 }
             }
             _ => crate::trellis::Evidence::Llr(&llr),

@@ -149,7 +149,75 @@ pub enum Evidence<'a> {
         /// `σ²`, the noise power per sample (for sums: the variance of a sum over `N` samples
         /// divided by `N`).
         noise_power: f64,
+        /// Scores already computed for these samples by earlier searches, to reuse
+        /// ([`MarkCache`]); `None` computes every search's own.
+        shared: Option<&'a MarkCache<'a>>,
     },
+}
+
+/// Whole-mark scores ([`Evidence::Coherent`]) that the searches of one burst share: the units
+/// [`fit_unit`] tries and a plan's exact frame lengths lay marks of mostly the same lengths on
+/// mostly the same grid, and each score costs a logarithm. Kept per grid bin, amplitude and
+/// noise power, one column of scores per mark length; a search reuses the columns it finds and
+/// adds those it computes. Serves only the samples it was made for (other samples compute
+/// their own scores).
+///
+/// ```
+/// use num_complex::Complex32;
+/// use ooksift::trellis::{segment, Evidence, MarkCache, Plan, Symbol};
+/// let mut iq = vec![Complex32::new(0.0, 0.0); 16];
+/// for &b in &[true, false, true, true] {
+///     let (on, off) = if b { (12, 4) } else { (4, 12) };
+///     iq.extend(std::iter::repeat(Complex32::new(1.0, 0.0)).take(on));
+///     iq.extend(std::iter::repeat(Complex32::new(0.0, 0.0)).take(off));
+/// }
+/// let plan = Plan {
+///     unit: 4.0,
+///     symbols: vec![Symbol { mark: 1.0, space: 3.0, bit: false }, Symbol { mark: 3.0, space: 1.0, bit: true }],
+///     header: None,
+///     closing: None,
+///     gap_min: 6.0,
+/// };
+/// let cache = MarkCache::new(&iq);
+/// let ev = |shared| Evidence::Coherent { iq: &iq, amplitude: 1.0, noise_power: 0.5, shared };
+/// let fresh = segment(ev(None), &plan);
+/// assert_eq!(fresh.frames[0].bits, [true, false, true, true]);
+/// // The same reading with the scores shared, the second time from the cache alone.
+/// assert_eq!(segment(ev(Some(&cache)), &plan), fresh);
+/// assert_eq!(segment(ev(Some(&cache)), &plan), fresh);
+/// // One column per mark length laid: 3–5 and 11–13 samples (a unit of 4 samples ± slack).
+/// assert_eq!(cache.columns(), 6);
+/// ```
+#[derive(Debug)]
+pub struct MarkCache<'a> {
+    iq: &'a [num_complex::Complex32],
+    grids: std::cell::RefCell<Vec<CachedGrid>>,
+}
+
+/// The scores of one grid bin, amplitude and noise power.
+#[derive(Debug)]
+struct CachedGrid {
+    bin: usize,
+    amplitude: u64,
+    noise_power: u64,
+    prefix: Vec<num_complex::Complex64>,
+    /// Mark length in grid steps and its score at every grid position.
+    columns: Vec<(usize, Vec<f32>)>,
+}
+
+impl<'a> MarkCache<'a> {
+    /// An empty cache for `iq`.
+    pub fn new(iq: &'a [num_complex::Complex32]) -> Self {
+        MarkCache {
+            iq,
+            grids: std::cell::RefCell::new(Vec::new()),
+        }
+    }
+
+    /// Columns of scores held (over every grid).
+    pub fn columns(&self) -> usize {
+        self.grids.borrow().iter().map(|g| g.columns.len()).sum()
+    }
 }
 
 impl Evidence<'_> {
@@ -172,11 +240,15 @@ impl<'a> Evidence<'a> {
     pub fn with_amplitude(self, a: f64) -> Evidence<'a> {
         match self {
             Evidence::Coherent {
-                iq, noise_power, ..
+                iq,
+                noise_power,
+                shared,
+                ..
             } => Evidence::Coherent {
                 iq,
                 amplitude: a,
                 noise_power,
+                shared,
             },
             llr => llr,
         }
@@ -270,25 +342,85 @@ impl MarkScores for Sums {
     }
 }
 
-/// Whole-mark ratios of [`Evidence::Coherent`], one table row per grid position and one column
-/// per mark length the plan allows (few distinct lengths, each looked up many times).
+/// Whole-mark ratios of [`Evidence::Coherent`], one column per mark length the plan allows
+/// (few distinct lengths, each looked up many times) holding its score at every grid position.
 struct MarkTable {
     table: Vec<f32>,
     /// Column of each length from `shortest`; `u16::MAX` for lengths the plan never lays.
     column: Vec<u16>,
     shortest: usize,
-    columns: usize,
+    /// Grid positions per column (`n + 1`).
+    rows: usize,
 }
 
 impl MarkScores for MarkTable {
     #[inline]
     fn mark(&self, a: usize, b: usize) -> f32 {
         let c = self.column[b - a - self.shortest] as usize;
-        self.table[a * self.columns + c]
+        self.table[c * self.rows + a]
     }
 }
 
+/// Sums of `iq` over grid steps of `bin` samples from the start: `n + 1` values.
+fn grid_prefix(iq: &[num_complex::Complex32], bin: usize, n: usize) -> Vec<num_complex::Complex64> {
+    use num_complex::Complex64;
+    let mut prefix = Vec::with_capacity(n + 1);
+    let mut acc = Complex64::new(0.0, 0.0);
+    prefix.push(acc);
+    for chunk in iq.chunks(bin) {
+        for z in chunk {
+            acc += Complex64::new(z.re as f64, z.im as f64);
+        }
+        prefix.push(acc);
+    }
+    prefix
+}
+
+/// The whole-mark score of marks of `len` grid steps at every grid position (`prefix.len()`
+/// of them; −∞ where the mark would run past the end), for a carrier of `amplitude` in noise
+/// of `noise_power` (`total` samples on a grid of `bin`).
+fn mark_column(
+    prefix: &[num_complex::Complex64],
+    amplitude: f64,
+    noise_power: f64,
+    bin: usize,
+    total: usize,
+    len: usize,
+) -> Vec<f32> {
+    let (c, per) = if noise_power > 0.0 && amplitude.is_finite() && amplitude > 0.0 {
+        (
+            2.0 * amplitude / noise_power,
+            amplitude * amplitude / noise_power,
+        )
+    } else {
+        (0.0, 0.0)
+    };
+    let n = prefix.len() - 1;
+    (0..=n)
+        .map(|a| {
+            let b = a + len;
+            if b > n {
+                return f32::NEG_INFINITY;
+            }
+            let samples = (b * bin).min(total).saturating_sub(a * bin) as f64;
+            let s = (prefix[b] - prefix[a]).norm_sqr().sqrt();
+            (ln_i0(c * s) - per * samples) as f32
+        })
+        .collect()
+}
+
 impl MarkTable {
+    /// Which column holds each of `lengths` (ascending, distinct).
+    fn columns_of(lengths: &[usize]) -> (Vec<u16>, usize) {
+        let shortest = lengths.iter().copied().min().unwrap_or(1);
+        let longest = lengths.iter().copied().max().unwrap_or(1);
+        let mut column = vec![u16::MAX; longest - shortest + 1];
+        for (i, &l) in lengths.iter().enumerate() {
+            column[l - shortest] = i as u16;
+        }
+        (column, shortest)
+    }
+
     /// The table for marks of `lengths` grid steps on a grid of `bin` samples over `n` steps.
     fn new(
         iq: &[num_complex::Complex32],
@@ -298,49 +430,74 @@ impl MarkTable {
         n: usize,
         lengths: &[usize],
     ) -> Self {
-        use num_complex::Complex64;
-        let mut prefix = Vec::with_capacity(n + 1);
-        let mut acc = Complex64::new(0.0, 0.0);
-        prefix.push(acc);
-        for chunk in iq.chunks(bin) {
-            for z in chunk {
-                acc += Complex64::new(z.re as f64, z.im as f64);
+        let prefix = grid_prefix(iq, bin, n);
+        let (column, shortest) = Self::columns_of(lengths);
+        let mut table = Vec::with_capacity((n + 1) * lengths.len());
+        for &l in lengths {
+            table.extend(mark_column(
+                &prefix,
+                amplitude,
+                noise_power,
+                bin,
+                iq.len(),
+                l,
+            ));
+        }
+        MarkTable {
+            table,
+            column,
+            shortest,
+            rows: n + 1,
+        }
+    }
+
+    /// [`MarkTable::new`] for the cache's samples, from the columns `cache` holds, computing
+    /// (and adding) the others.
+    fn shared(
+        cache: &MarkCache<'_>,
+        amplitude: f64,
+        noise_power: f64,
+        bin: usize,
+        n: usize,
+        lengths: &[usize],
+    ) -> Self {
+        let mut grids = cache.grids.borrow_mut();
+        let key = (bin, amplitude.to_bits(), noise_power.to_bits());
+        let i = match grids
+            .iter()
+            .position(|g| (g.bin, g.amplitude, g.noise_power) == key)
+        {
+            Some(i) => i,
+            None => {
+                grids.push(CachedGrid {
+                    bin,
+                    amplitude: key.1,
+                    noise_power: key.2,
+                    prefix: grid_prefix(cache.iq, bin, n),
+                    columns: Vec::new(),
+                });
+                grids.len() - 1
             }
-            prefix.push(acc);
-        }
-        let shortest = lengths.iter().copied().min().unwrap_or(1);
-        let longest = lengths.iter().copied().max().unwrap_or(1);
-        let mut column = vec![u16::MAX; longest - shortest + 1];
-        for (i, &l) in lengths.iter().enumerate() {
-            column[l - shortest] = i as u16;
-        }
-        let columns = lengths.len();
-        let (c, per) = if noise_power > 0.0 && amplitude.is_finite() && amplitude > 0.0 {
-            (
-                2.0 * amplitude / noise_power,
-                amplitude * amplitude / noise_power,
-            )
-        } else {
-            (0.0, 0.0)
         };
-        let total = iq.len();
-        let mut table = vec![f32::NEG_INFINITY; (n + 1) * columns];
-        for a in 0..=n {
-            for (i, &l) in lengths.iter().enumerate() {
-                let b = a + l;
-                if b > n {
-                    continue;
+        let g = &mut grids[i];
+        let (column, shortest) = Self::columns_of(lengths);
+        let mut table = Vec::with_capacity((n + 1) * lengths.len());
+        for &l in lengths {
+            match g.columns.iter().find(|c| c.0 == l) {
+                Some(c) => table.extend_from_slice(&c.1),
+                None => {
+                    let col =
+                        mark_column(&g.prefix, amplitude, noise_power, bin, cache.iq.len(), l);
+                    table.extend_from_slice(&col);
+                    g.columns.push((l, col));
                 }
-                let samples = (b * bin).min(total).saturating_sub(a * bin) as f64;
-                let s = (prefix[b] - prefix[a]).norm_sqr().sqrt();
-                table[a * columns + i] = (ln_i0(c * s) - per * samples) as f32;
             }
         }
         MarkTable {
             table,
             column,
             shortest,
-            columns,
+            rows: n + 1,
         }
     }
 }
@@ -389,8 +546,15 @@ fn search(ev: Evidence<'_>, plan: &Plan, bits: Option<usize>, steps_per_unit: f6
             iq,
             amplitude,
             noise_power,
+            shared,
         } => {
-            let table = MarkTable::new(iq, amplitude, noise_power, bin, n, &grid.mark_lengths());
+            let lengths = grid.mark_lengths();
+            let table = match shared {
+                Some(cache) if std::ptr::eq(cache.iq, iq) => {
+                    MarkTable::shared(cache, amplitude, noise_power, bin, n, &lengths)
+                }
+                _ => MarkTable::new(iq, amplitude, noise_power, bin, n, &lengths),
+            };
             search_grid(&table, &grid, &st, plan, n, iq.len())
         }
     }
@@ -882,6 +1046,7 @@ impl Reading {
                 iq,
                 amplitude,
                 noise_power,
+                ..
             } => (iq, amplitude, noise_power),
         };
         let sum = |a: usize, b: usize| -> (f64, f64) {
@@ -1483,6 +1648,7 @@ mod tests {
             iq: &iq,
             amplitude: 1.0,
             noise_power: 1.0,
+            shared: None,
         };
         // (Frames of exactly 8 bits: a free search may add a bit whose mark lies on a noise
         // peak just before or after a frame, which the decoder's exact searches sort out.)
@@ -1512,6 +1678,7 @@ mod tests {
                 iq: &noise,
                 amplitude: 1.0,
                 noise_power: 1.0,
+                shared: None,
             },
             &pwm_plan(16.0),
         );
@@ -1538,6 +1705,7 @@ mod tests {
                 iq: &iq,
                 amplitude: 1.0,
                 noise_power: np,
+                shared: None,
             };
             whole += wrong(&segment_frames(ev, &pwm_plan(16.0), Some(12)));
             let env =
@@ -1553,6 +1721,66 @@ mod tests {
     }
 
     #[test]
+    fn shared_whole_mark_scores_give_the_readings_fresh_ones_give() {
+        // A unit 10 % off at 8 dB: fit_unit's nine units, then exact searches at a second
+        // amplitude, as the decoder runs them on one burst, with and without a cache.
+        let bits = [
+            true, false, false, true, true, false, true, false, false, true, true, true,
+        ];
+        let np = 16.0 / 10f64.powf(0.8);
+        let iq = pwm_iq(&bits, 16, 3, np, 21);
+        let cache = MarkCache::new(&iq);
+        let ev = |amplitude, shared| Evidence::Coherent {
+            iq: &iq,
+            amplitude,
+            noise_power: np,
+            shared,
+        };
+        let plan = pwm_plan(16.0 * 1.1);
+        let (fresh_plan, fresh) = fit_unit(ev(1.0, None), &plan, 0.15, 0.025);
+        let (cached_plan, cached) = fit_unit(ev(1.0, Some(&cache)), &plan, 0.15, 0.025);
+        assert_eq!(fresh_plan, cached_plan);
+        assert_eq!(fresh, cached);
+        let after_fit = cache.columns();
+        for n in [11, 12, 13] {
+            assert_eq!(
+                segment_frames(ev(0.9, None), &fresh_plan, Some(n)),
+                segment_frames(ev(0.9, Some(&cache)), &fresh_plan, Some(n))
+            );
+        }
+        // The nine searches share columns: fewer are computed than the seven coarse units
+        // alone lay (measured when written: 32 against 64).
+        let laid: usize = (-3..=3)
+            .map(|i| {
+                let p = Plan {
+                    unit: plan.unit * (1.0 + 0.05 * i as f64),
+                    ..plan.clone()
+                };
+                let bin = (p.unit / STEPS_PER_UNIT).floor().max(1.0) as usize;
+                Grid::new(&p, bin).mark_lengths().len()
+            })
+            .sum();
+        assert!(after_fit * 3 < laid * 2, "{after_fit} columns of {laid}");
+        // Another amplitude is another grid of scores, shared by the exact searches.
+        assert!(cache.columns() > after_fit);
+        // Other samples never read this cache's scores.
+        let other = pwm_iq(&bits, 16, 3, np, 22);
+        let foreign = Evidence::Coherent {
+            iq: &other,
+            amplitude: 1.0,
+            noise_power: np,
+            shared: Some(&cache),
+        };
+        let own = Evidence::Coherent {
+            iq: &other,
+            amplitude: 1.0,
+            noise_power: np,
+            shared: None,
+        };
+        assert_eq!(segment(foreign, &fresh_plan), segment(own, &fresh_plan));
+    }
+
+    #[test]
     fn the_whole_mark_fit_finds_spaces_full_of_carrier_and_the_amplitude_inside_marks() {
         let bits = [true, false, false, true, true, false, true, false];
         let iq = pwm_iq(&bits, 16, 3, 0.5, 3);
@@ -1560,6 +1788,7 @@ mod tests {
             iq: &iq,
             amplitude: 1.0,
             noise_power: 0.5,
+            shared: None,
         };
         let right = segment(ev, &pwm_plan(16.0));
         assert_eq!(right.frames.len(), 3);
