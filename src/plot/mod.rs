@@ -123,7 +123,7 @@ pub struct PlotOptions {
     /// End of the time window, seconds from capture start (default: the end).
     pub to_s: Option<f64>,
     /// Envelope columns kept across the window (default: one per pixel of the SVG's plot
-    /// area, [`svg::PLOT_WIDTH_PX`]).
+    /// area, 1 290).
     pub columns: usize,
     /// Whole band, or one carrier's channel (IQ files only).
     pub channel: ChannelChoice,
