@@ -860,7 +860,13 @@ impl Decoder {
             if fit < MIN_TRELLIS_FIT || (own.is_some() && r.fit(llr, win.half) < MIN_LOOK_FIT) {
                 continue;
             }
-            if let Some(p) = build(&r.marks).filter(|p| p.frames.len() >= 2) {
+            // The marks are read again as a code (the frame layout, voting). Coming back with
+            // another frame length, a mark the search laid as framing was read as a bit or
+            // the reverse (a closing mark laid two units long reads as a long mark): kept
+            // only when the edge readings' full frames had that length too.
+            let framed =
+                |p: &PressDecode| p.bits.len() == n || known_bits.is_none_or(|k| p.bits.len() == k);
+            if let Some(p) = build(&r.marks).filter(|p| p.frames.len() >= 2 && framed(p)) {
                 if best
                     .as_ref()
                     .is_none_or(|b| rank(r.score, &p) > rank(b.0, &b.1))

@@ -194,3 +194,21 @@ fn weak_presses_in_a_long_capture_are_found_by_the_held_power() {
         "{report}"
     );
 }
+
+#[test]
+fn a_trellis_reading_read_back_one_bit_longer_is_not_kept() {
+    // Truth: the synth truth file. The same three presses at 13 dB: the trellis reads the
+    // last one's 8 frames right (24 bits and a closing mark it lays two units long), but read
+    // back as a code, that closing mark became a 25th bit, and the press was reported as a
+    // second code `165c2d3` (measured before the fix: `b2e169` ×2 and `165c2d3` ×1).
+    let d = tempfile::tempdir().expect("tempdir");
+    let out = d.path().join("long13.cu8");
+    let press = "pwm:0xb2e169,unit_us=350,repeats=8,offset_hz=50000,gap_ms=8000";
+    let truth = long_capture(&out, &[press, press, press], "13");
+    let want = truth["codes"][0]["bits"].as_str().expect("truth bits");
+    let report = decode_json(&out, &["--rate", "250000"]);
+    let codes = report["codes"].as_array().expect("codes");
+    assert_eq!(codes.len(), 1, "{codes:?}");
+    assert_eq!(codes[0]["bits"].as_str(), Some(want));
+    assert_eq!(codes[0]["presses"].as_u64(), Some(3), "{:?}", codes[0]);
+}
