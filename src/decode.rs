@@ -549,8 +549,8 @@ impl Decoder {
         // The searches read whole marks coherently when the channel's samples are at hand:
         // the carrier turned to zero frequency, its amplitude and the noise of a sum of
         // samples from the look's levels (the idle level of a boxcar mean of `len` samples is
-        // Rayleigh: √(π·σ²/(4·len))). The look's per-sample ratios stay for the fits.
-        // Every search of the burst shares its whole-mark scores.
+        // Rayleigh: √(π·σ²/(4·len))). The look's per-sample ratios stay for the fits. Every
+        // search of the burst shares the whole-mark scores it computes.
         let marks = coherent
             .as_ref()
             .map(|c| crate::trellis::MarkCache::new(&c.centred));

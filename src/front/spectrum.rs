@@ -760,7 +760,7 @@ pub const HELD_MARGIN_DB: f32 = 4.0;
 /// bins). In the sensitivity sweep's 0.25 s captures (200 presses a point) it found PWM
 /// carriers the peak-hold missed at 8 and 9 dB: presses decoded 11 → 31 and 68 → 106, but wrong
 /// codes 0 → 14 and 16 → 21. In a 25 s capture the peak-hold finds three PWM presses from
-/// 13 dB, the held power from 9 dB.
+/// 13 dB, the held power from 7 dB (they decode from 9 dB).
 pub const HELD_MIN_FRAMES: u64 = 2000;
 
 fn one() -> usize {
