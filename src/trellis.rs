@@ -1412,6 +1412,20 @@ pub struct PlanReading {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Whole-mark evidence of `iq` (amplitude, noise power), computed afresh by each search.
+    fn whole_marks(
+        iq: &[num_complex::Complex32],
+        amplitude: f64,
+        noise_power: f64,
+    ) -> Evidence<'_> {
+        Evidence::Coherent {
+            iq,
+            amplitude,
+            noise_power,
+            shared: None,
+        }
+    }
     use crate::rng::Rng;
 
     fn pwm_plan(unit: f64) -> Plan {
@@ -1673,12 +1687,7 @@ mod tests {
         // 16 samples per unit, amplitude 1, σ² = 1: Eu/N0 = 16 (12 dB).
         let bits = [true, false, false, true, true, false, true, false];
         let iq = pwm_iq(&bits, 16, 3, 1.0, 5);
-        let ev = Evidence::Coherent {
-            iq: &iq,
-            amplitude: 1.0,
-            noise_power: 1.0,
-            shared: None,
-        };
+        let ev = whole_marks(&iq, 1.0, 1.0);
         // (Frames of exactly 8 bits: a free search may add a bit whose mark lies on a noise
         // peak just before or after a frame, which the decoder's exact searches sort out.)
         let r = segment_frames(ev, &pwm_plan(16.0), Some(8));
@@ -1702,15 +1711,7 @@ mod tests {
                 num_complex::Complex32::new(a as f32, b as f32)
             })
             .collect();
-        let quiet = segment(
-            Evidence::Coherent {
-                iq: &noise,
-                amplitude: 1.0,
-                noise_power: 1.0,
-                shared: None,
-            },
-            &pwm_plan(16.0),
-        );
+        let quiet = segment(whole_marks(&noise, 1.0, 1.0), &pwm_plan(16.0));
         assert!(quiet.frames.is_empty(), "{:?}", quiet.frames);
     }
 
@@ -1730,12 +1731,7 @@ mod tests {
             let bits: Vec<bool> = (0..12).map(|_| rng.below(2) == 1).collect();
             let iq = pwm_iq(&bits, unit, 3, np, 100 + seed);
             let wrong = |r: &Reading| 3 - r.frames.iter().filter(|f| f.bits == bits).count().min(3);
-            let ev = Evidence::Coherent {
-                iq: &iq,
-                amplitude: 1.0,
-                noise_power: np,
-                shared: None,
-            };
+            let ev = whole_marks(&iq, 1.0, np);
             whole += wrong(&segment_frames(ev, &pwm_plan(16.0), Some(12)));
             let env =
                 crate::front::coherent::coherent_envelope(&iq, 1.0, half_unit, 0.0, iq.len(), 0.0);
@@ -1801,12 +1797,7 @@ mod tests {
             noise_power: np,
             shared: Some(&cache),
         };
-        let own = Evidence::Coherent {
-            iq: &other,
-            amplitude: 1.0,
-            noise_power: np,
-            shared: None,
-        };
+        let own = whole_marks(&other, 1.0, np);
         assert_eq!(segment(foreign, &fresh_plan), segment(own, &fresh_plan));
     }
 
@@ -1846,12 +1837,7 @@ mod tests {
     fn the_whole_mark_fit_finds_spaces_full_of_carrier_and_the_amplitude_inside_marks() {
         let bits = [true, false, false, true, true, false, true, false];
         let iq = pwm_iq(&bits, 16, 3, 0.5, 3);
-        let ev = Evidence::Coherent {
-            iq: &iq,
-            amplitude: 1.0,
-            noise_power: 0.5,
-            shared: None,
-        };
+        let ev = whole_marks(&iq, 1.0, 0.5);
         let right = segment(ev, &pwm_plan(16.0));
         assert_eq!(right.frames.len(), 3);
         let fit = right.fit_to(ev, 0.5, None);

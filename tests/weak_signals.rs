@@ -163,6 +163,21 @@ fn long_capture(out: &std::path::Path, presses: &[&str], snr_db: &str) -> serde_
     synth(out, &args)
 }
 
+/// Decodes three presses of one PWM code in a 25 s capture at `snr_db` and checks the report
+/// holds that code alone, from all three presses; returns the code.
+fn three_presses_read_as_one_code(dir: &std::path::Path, snr_db: &str) -> serde_json::Value {
+    let out = dir.join(format!("long{snr_db}.cu8"));
+    let press = "pwm:0xb2e169,unit_us=350,repeats=8,offset_hz=50000,gap_ms=8000";
+    let truth = long_capture(&out, &[press, press, press], snr_db);
+    let want = truth["codes"][0]["bits"].as_str().expect("truth bits");
+    let report = decode_json(&out, &["--rate", "250000"]);
+    let codes = report["codes"].as_array().expect("codes");
+    assert_eq!(codes.len(), 1, "{codes:?}");
+    assert_eq!(codes[0]["bits"].as_str(), Some(want));
+    assert_eq!(codes[0]["presses"].as_u64(), Some(3), "{:?}", codes[0]);
+    codes[0].clone()
+}
+
 #[test]
 fn weak_presses_in_a_long_capture_are_found_by_the_held_power() {
     // Truth: the synth truth file. Three PWM presses in 25 s at 11 dB: the peak-hold of
@@ -170,19 +185,10 @@ fn weak_presses_in_a_long_capture_are_found_by_the_held_power() {
     // power (front::spectrum, HELD_MIN_FRAMES) no carrier was found and the whole band gave
     // no code; measured when added: all three presses decoded, at 10 dB two.
     let d = tempfile::tempdir().expect("tempdir");
-    let out = d.path().join("long.cu8");
-    let press = "pwm:0xb2e169,unit_us=350,repeats=8,offset_hz=50000,gap_ms=8000";
-    let truth = long_capture(&out, &[press, press, press], "11");
-    let want = truth["codes"][0]["bits"].as_str().expect("truth bits");
-    let report = decode_json(&out, &["--rate", "250000"]);
-    let codes = report["codes"].as_array().expect("codes");
-    assert_eq!(codes.len(), 1, "{codes:?}");
-    assert_eq!(codes[0]["bits"].as_str(), Some(want));
-    assert_eq!(codes[0]["presses"].as_u64(), Some(3), "{:?}", codes[0]);
+    let code = three_presses_read_as_one_code(d.path(), "11");
     assert!(
-        (codes[0]["carrier_offset_hz"].as_f64().expect("offset") - 50_000.0).abs() < 1_000.0,
-        "{:?}",
-        codes[0]
+        (code["carrier_offset_hz"].as_f64().expect("offset") - 50_000.0).abs() < 1_000.0,
+        "{code:?}"
     );
     // Noise alone, as long: no carrier, no code.
     let quiet = d.path().join("quiet.cu8");
@@ -202,13 +208,5 @@ fn a_trellis_reading_read_back_one_bit_longer_is_not_kept() {
     // back as a code, that closing mark became a 25th bit, and the press was reported as a
     // second code `165c2d3` (measured before the fix: `b2e169` ×2 and `165c2d3` ×1).
     let d = tempfile::tempdir().expect("tempdir");
-    let out = d.path().join("long13.cu8");
-    let press = "pwm:0xb2e169,unit_us=350,repeats=8,offset_hz=50000,gap_ms=8000";
-    let truth = long_capture(&out, &[press, press, press], "13");
-    let want = truth["codes"][0]["bits"].as_str().expect("truth bits");
-    let report = decode_json(&out, &["--rate", "250000"]);
-    let codes = report["codes"].as_array().expect("codes");
-    assert_eq!(codes.len(), 1, "{codes:?}");
-    assert_eq!(codes[0]["bits"].as_str(), Some(want));
-    assert_eq!(codes[0]["presses"].as_u64(), Some(3), "{:?}", codes[0]);
+    three_presses_read_as_one_code(d.path(), "13");
 }
