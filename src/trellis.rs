@@ -709,6 +709,26 @@ fn search_grid<M: MarkScores>(
             codes[to] = code;
         }
     };
+    // One element of `lens` grid steps from position `t` (from a state scoring `from`) into
+    // state `to` at its end: a mark adds its score, a space nothing; the code is the length
+    // with `flags`.
+    let lay = |score: &mut [f32],
+               codes: &mut [Code],
+               t: usize,
+               from: f32,
+               (l0, l1): (usize, usize),
+               mark: bool,
+               to: usize,
+               flags: Code| {
+        for len in l0..=l1.min(n - t) {
+            let v = if mark {
+                from + scores.mark(t, t + len)
+            } else {
+                from
+            };
+            relax(score, codes, idx(to, t + len), v, flags | len as Code);
+        }
+    };
     // Row `t` to read and row `t + len` to write (`len ≥ 1`).
     fn rows<'s>(
         score: &'s mut [f32],
@@ -764,33 +784,14 @@ fn search_grid<M: MarkScores>(
         score[idx(States::A, t)] = a;
         starts[t] = from;
         match header {
-            Some(((m0, m1), _)) => {
-                for len in m0..=m1.min(n - t) {
-                    let v = a + scores.mark(t, t + len);
-                    relax(
-                        &mut score,
-                        &mut codes,
-                        idx(States::H, t + len),
-                        v,
-                        len_code(len),
-                    );
-                }
-            }
+            Some((mark, _)) => lay(&mut score, &mut codes, t, a, mark, true, States::H, 0),
             // B₀ from A at the same position: length 0.
             None => relax(&mut score, &mut codes, idx(st.b(0), t), a, 0),
         }
-        if let Some((_, (s0, s1))) = header {
+        if let Some((_, space)) = header {
             let h = score[idx(States::H, t)];
             if h > neg {
-                for len in s0..=s1.min(n - t) {
-                    relax(
-                        &mut score,
-                        &mut codes,
-                        idx(st.b(0), t + len),
-                        h,
-                        len_code(len),
-                    );
-                }
+                lay(&mut score, &mut codes, t, h, space, false, st.b(0), 0);
             }
         }
         // E_{s,k} → B_k: the symbol's space leads to the next symbol.
@@ -823,31 +824,14 @@ fn search_grid<M: MarkScores>(
         }
         let full = score[idx(st.b(k_max), t)];
         if st.open && full > neg {
-            for (s, &((m0, m1), _)) in syms.iter().enumerate() {
-                for len in m0..=m1.min(n - t) {
-                    let v = full + scores.mark(t, t + len);
-                    relax(
-                        &mut score,
-                        &mut codes,
-                        idx(st.e(s, k_max), t + len),
-                        v,
-                        FROM_FULL | len_code(len),
-                    );
-                }
+            for (s, &(mark, _)) in syms.iter().enumerate() {
+                let to = st.e(s, k_max);
+                lay(&mut score, &mut codes, t, full, mark, true, to, FROM_FULL);
             }
         }
         // B_K → C: the closing mark.
-        if let (Some((m0, m1)), true) = (closing, full > neg) {
-            for len in m0..=m1.min(n - t) {
-                let v = full + scores.mark(t, t + len);
-                relax(
-                    &mut score,
-                    &mut codes,
-                    idx(States::C, t + len),
-                    v,
-                    len_code(len),
-                );
-            }
+        if let (Some(mark), true) = (closing, full > neg) {
+            lay(&mut score, &mut codes, t, full, mark, true, States::C, 0);
         }
         for &s in &ends {
             let v = score[idx(s, t)];
