@@ -8,6 +8,9 @@
 //! cargo run --release --example replay_fuzz -- decode_chain fuzz/corpus/decode_chain/* > after.txt
 //! ```
 //!
+//! With `REPLAY_TIMES=1` each input's decode time and size go to standard error too
+//! (`seconds bytes name`), to find the inputs that cost the most.
+//!
 //! Targets: `decode_chain` (the one-pass path of standard input) and `decode_channels` (the
 //! per-carrier path of IQ files). The corpora grow under `fuzz/corpus/` while fuzzing
 //! (`fuzz/README.md`); `fuzz/seeds/` holds a few committed inputs.
@@ -28,6 +31,9 @@ fn main() {
             std::process::exit(2);
         }
     };
+    // REPLAY_TIMES=1: one line per input on standard error, "seconds bytes name", to find
+    // the inputs that cost the most.
+    let times = std::env::var_os("REPLAY_TIMES").is_some_and(|v| v == "1");
     let mut total = Duration::ZERO;
     let mut inputs = 0usize;
     for path in args {
@@ -43,8 +49,12 @@ fn main() {
             .map_or(path.clone(), |n| n.to_string_lossy().into_owned());
         let t = Instant::now();
         let result = run(&data);
-        total += t.elapsed();
+        let took = t.elapsed();
+        total += took;
         inputs += 1;
+        if times {
+            eprintln!("{:.6} {} {name}", took.as_secs_f64(), data.len());
+        }
         match result {
             Ok(report) => println!(
                 "{name} {}",
