@@ -13,11 +13,13 @@
 //!   of noise alone rises ≈ 10 dB above its average), and within
 //!   `dynamic_range_db` of the strongest bin, with gaps of up to
 //!   `merge_gap_bins` bridged; a run holding two well-separated peaks of similar level is split;
-//! - when neither shows a carrier in a capture of at least [`HELD_MIN_FRAMES`] frames, the
-//!   **held power** decides: per bin, the power smoothed over [`HELD_FRAMES`] frames keeps
-//!   its highest value, and bins [`HELD_MARGIN_DB`] above the median of those are carriers
-//!   (smoothing shrinks the spread of noise, so weak presses that the rising peak-hold floor
-//!   hides stand out);
+//! - in a capture of at least [`HELD_MIN_FRAMES`] frames the **held power** finds more: per
+//!   bin, the power smoothed over [`HELD_FRAMES`] frames keeps its highest value, and runs of
+//!   bins [`HELD_MARGIN_DB`] above the median of those are carriers too (smoothing shrinks
+//!   the spread of noise, so weak presses that the rising peak-hold floor hides stand out) —
+//!   unless a run touches a carrier found above (its keying sidebands) or peaked while a
+//!   stronger bursty carrier was the loudest bin in the band (its image or intermodulation
+//!   product);
 //! - the **centre** of a carrier is the power-weighted centroid of its main-lobe bins
 //!   (peak-hold above the peak-hold floor), which is sub-bin accurate;
 //! - **activity** is the share of time the carrier is on, estimated from the first two moments
@@ -295,6 +297,12 @@ pub struct SpectrumSurvey {
     /// (a one-pole average), and the highest it reached.
     smooth: Vec<f32>,
     held: Vec<f32>,
+    /// Per bin: the loudest bin of the smoothed power (FFT order) when `held` last rose —
+    /// what else was on the air then (as of a few frames before, see [`LOUDEST_EVERY`]). `u32`, as the powers are `f32`, so the update stays
+    /// one vector wide.
+    held_with: Vec<u32>,
+    /// The loudest bin of the smoothed power, as of the last search ([`LOUDEST_EVERY`]).
+    loudest: u32,
     frames: u64,
     samples: u64,
     /// Frames cut so far, analysed or skipped (the stride counts them).
@@ -348,6 +356,8 @@ impl SpectrumSurvey {
             peak: vec![0.0; n],
             smooth: vec![0.0; n],
             held: vec![0.0; n],
+            held_with: vec![0u32; n],
+            loudest: 0,
             frames: 0,
             samples: 0,
             slots: 0,
@@ -524,15 +534,19 @@ impl SpectrumSurvey {
             log.push(&self.power, start, self.cfg.fft_len as u64);
         }
         let alpha = 1.0 / HELD_FRAMES as f32;
-        for ((sm, h), &p) in self
-            .smooth
-            .iter_mut()
-            .zip(self.held.iter_mut())
-            .zip(&self.power)
-        {
-            *sm += (p - *sm) * alpha;
-            *h = if *sm > *h { *sm } else { *h };
+        // The loudest smoothed bin moves slowly (the smoothing spans HELD_FRAMES frames):
+        // found afresh every LOUDEST_EVERY frames, it costs a fraction of the update.
+        if self.frames % LOUDEST_EVERY == 0 {
+            self.loudest = loudest_bin(&self.smooth);
         }
+        smooth_and_hold(
+            &mut self.smooth,
+            &self.power,
+            &mut self.held,
+            &mut self.held_with,
+            alpha,
+            self.loudest,
+        );
         // Sums run in f32 over batches of `BATCH_FRAMES` frames (a schedule fixed by the frame
         // count), then move into f64, so long captures keep their precision.
         for ((b1, b2), &p) in self
@@ -569,6 +583,8 @@ impl SpectrumSurvey {
         self.peak.iter_mut().for_each(|v| *v = 0.0);
         self.smooth.iter_mut().for_each(|v| *v = 0.0);
         self.held.iter_mut().for_each(|v| *v = 0.0);
+        self.held_with.iter_mut().for_each(|v| *v = 0);
+        self.loudest = 0;
         self.frames = 0;
         self.samples = 0;
         self.slots = 0;
@@ -661,38 +677,78 @@ impl SpectrumSurvey {
             }
         }
 
-        // When neither finds a carrier in a long capture, the held power may: weak presses,
-        // which the peak-hold floor hides as it rises with the number of frames. (Only then:
-        // a strong carrier's keying sidebands stand out in held power too; and in short
-        // captures it finds presses too weak to decode reliably, see HELD_MIN_FRAMES.)
+        // In a long capture the held power finds weak presses that the peak-hold floor hides
+        // as it rises with the number of frames: on their own when neither peak-hold nor
+        // average finds a carrier, else in runs of bins apart from the carriers those find.
+        // A strong carrier leaves its own marks in held power: keying sidebands beside its
+        // run, and, in 8-bit captures, images and intermodulation products elsewhere, all
+        // at their highest while it is on. So a run from held power that touches a carrier's
+        // run, or whose held power peaked while a stronger bursty carrier was the loudest
+        // thing in the band, is taken for that carrier's. Not in short captures: there the held power finds
+        // presses too weak to decode reliably, see HELD_MIN_FRAMES.
         let held_db: Vec<f32> = held.iter().map(|&h| power_db(h)).collect();
         let held_thr = held_floor * db_to_ratio(HELD_MARGIN_DB);
-        let mut by_held = false;
-        if !mask.iter().any(|&m| m) && held_floor > 0.0 && self.frames >= HELD_MIN_FRAMES {
+        // Runs of bins with the spectrum they are measured on (`true`: held power).
+        let mut found: Vec<(usize, usize, bool)> = runs(&mask, self.cfg.merge_gap_bins)
+            .into_iter()
+            .map(|(a, b)| (a, b, false))
+            .collect();
+        if held_floor > 0.0 && self.frames >= HELD_MIN_FRAMES {
             // The DC offset's zone stays out, as above.
             let guard = survey.dc_spike.is_some().then_some(lo..=hi);
-            for (i, m) in mask.iter_mut().enumerate() {
-                let dc = guard.as_ref().is_some_and(|g| g.contains(&i));
-                *m = peak[i] > range_thr && held[i] > held_thr && !dc;
-            }
-            by_held = true;
+            let held_mask: Vec<bool> = (0..n)
+                .map(|i| {
+                    let dc = guard.as_ref().is_some_and(|g| g.contains(&i));
+                    peak[i] > range_thr && held[i] > held_thr && !dc
+                })
+                .collect();
+            // Strongest held bin of a run: its held power, and the loudest bin (shifted
+            // order) when it peaked.
+            let top = |a: usize, b: usize| {
+                (a..=b)
+                    .map(|i| (held[i], (self.held_with[bin(i)] as usize + half) % n))
+                    .fold((0.0f64, 0usize), |m, x| if x.0 > m.0 { x } else { m })
+            };
+            // Each carrier's run, its held power, and whether it is bursty (a continuous
+            // carrier is the loudest bin whenever a weak press peaks; its own products are
+            // steady too, and the average finds them).
+            let carriers: Vec<((usize, usize), f64, bool)> = found
+                .iter()
+                .map(|&(a, b, _)| {
+                    let bursty =
+                        (a..=b).any(|i| activity(i) < self.cfg.continuous_min_activity as f64);
+                    ((a, b), top(a, b).0, bursty)
+                })
+                .collect();
+            let gap = self.cfg.merge_gap_bins + 1;
+            let owned = |&(a, b): &(usize, usize)| {
+                let (h, loudest) = top(a, b);
+                carriers.iter().any(|&((fa, fb), fh, bursty)| {
+                    let touches = a <= fb + gap && fa <= b + gap;
+                    let during = bursty && fh > h && (fa..=fb).contains(&loudest);
+                    touches || during
+                })
+            };
+            let extra: Vec<(usize, usize, bool)> = runs(&held_mask, self.cfg.merge_gap_bins)
+                .into_iter()
+                .filter(|r| !owned(r))
+                .map(|(a, b)| (a, b, true))
+                .collect();
+            found.extend(extra);
+            found.sort_unstable();
         }
         if std::env::var_os("OOKSIFT_DEBUG").is_some() {
             let top = held.iter().fold(0.0f64, |m, &h| m.max(h));
             eprintln!(
-                "survey: held power tops its median by {:.2} dB ({} frames){}",
+                "survey: held power tops its median by {:.2} dB ({} frames); {} run(s) from held power",
                 power_db(top) - power_db(held_floor),
                 self.frames,
-                if by_held {
-                    "; no peak-hold or average find: held power decides"
-                } else {
-                    ""
-                }
+                found.iter().filter(|r| r.2).count(),
             );
         }
         let pdb = &survey.peak_db;
-        let split_db = if by_held { &held_db } else { pdb };
-        for (start, end) in runs(&mask, self.cfg.merge_gap_bins) {
+        for (start, end, by_held) in found {
+            let split_db = if by_held { &held_db } else { pdb };
             for (ps, pe, top) in split_run(split_db, start, end, &self.cfg, bin_hz) {
                 let offset = |i: f64| (i - half as f64) * bin_hz;
                 // Main lobe: contiguous bins within 10 dB of the top, weighted by their
@@ -742,25 +798,111 @@ impl SpectrumSurvey {
     }
 }
 
+/// One analysed frame's `power` into the smoothed power (one-pole, `alpha`) and its
+/// running maximum `held`; where that rises, `with` notes `loudest`. Eight bins at a time as
+/// arrays, out of line, so that it compiles to vector instructions (inlined, the compiler
+/// could not tell the slices apart).
+#[inline(never)]
+fn smooth_and_hold(
+    smooth: &mut [f32],
+    power: &[f32],
+    held: &mut [f32],
+    with: &mut [u32],
+    alpha: f32,
+    loudest: u32,
+) {
+    let n = smooth
+        .len()
+        .min(power.len())
+        .min(held.len())
+        .min(with.len());
+    let (smooth, power, held, with) = (
+        &mut smooth[..n],
+        &power[..n],
+        &mut held[..n],
+        &mut with[..n],
+    );
+    let chunks = smooth
+        .chunks_exact_mut(8)
+        .zip(power.chunks_exact(8))
+        .zip(held.chunks_exact_mut(8).zip(with.chunks_exact_mut(8)));
+    for ((sm, p), (h, w)) in chunks {
+        if let (Ok(sm), Ok(p), Ok(h), Ok(w)) =
+            (sm.try_into(), p.try_into(), h.try_into(), w.try_into())
+        {
+            hold8(sm, p, h, w, alpha, loudest);
+        }
+    }
+    let tail = n / 8 * 8;
+    for i in tail..n {
+        smooth[i] += (power[i] - smooth[i]) * alpha;
+        if smooth[i] > held[i] {
+            held[i] = smooth[i];
+            with[i] = loudest;
+        }
+    }
+}
+
+/// [`smooth_and_hold`] on eight bins, branch-free (selects as integer masks: written as
+/// `if`, they compile to branches, taken at random on noise).
+#[inline(always)]
+fn hold8(
+    sm: &mut [f32; 8],
+    p: &[f32; 8],
+    h: &mut [f32; 8],
+    w: &mut [u32; 8],
+    alpha: f32,
+    loudest: u32,
+) {
+    for l in 0..8 {
+        let v = sm[l] + (p[l] - sm[l]) * alpha;
+        sm[l] = v;
+        let rise = ((v > h[l]) as u32).wrapping_neg();
+        h[l] = f32::from_bits((v.to_bits() & rise) | (h[l].to_bits() & !rise));
+        w[l] = (loudest & rise) | (w[l] & !rise);
+    }
+}
+
+/// The first bin holding the highest of `v` (0 when empty or all NaN).
+fn loudest_bin(v: &[f32]) -> u32 {
+    // Eight lanes keep the maximum vectorised; then the first bin holding it.
+    let mut lanes = [f32::NEG_INFINITY; 8];
+    for c in v.chunks_exact(8) {
+        for l in 0..8 {
+            lanes[l] = if c[l] > lanes[l] { c[l] } else { lanes[l] };
+        }
+    }
+    let top = v[v.len() / 8 * 8..]
+        .iter()
+        .chain(&lanes)
+        .fold(f32::NEG_INFINITY, |m, &x| if x > m { x } else { m });
+    v.iter().position(|&x| x == top).map_or(0, |i| i as u32)
+}
+
+/// Analysed frames between two searches for the loudest smoothed bin (a quarter of
+/// [`HELD_FRAMES`]).
+const LOUDEST_EVERY: u64 = 4;
+
 /// Frames summed in `f32` before the sums move into `f64`.
 const BATCH_FRAMES: u64 = 32;
 
 /// Analysed frames the held power averages over (its one-pole constant).
 pub const HELD_FRAMES: usize = 16;
 
-/// When neither the peak-hold nor the average shows a carrier, a bin belongs to one when its
-/// held power (the highest its power smoothed over [`HELD_FRAMES`] analysed frames reached)
+/// In a long capture ([`HELD_MIN_FRAMES`]) a bin the peak-hold and average leave out belongs
+/// to a carrier when its held power (the highest its power smoothed over [`HELD_FRAMES`] analysed frames reached)
 /// tops the median held power by this many dB. Measured on pure-noise captures at
 /// 2.048 MHz and 250 kHz (cu8, 1 kHz bins): the strongest bin topped the median by 1.1–1.9 dB
 /// in 25 s and 2 s captures and by up to 2.6 dB in 0.25 s ones (43 captures); a PWM press at
 /// Eu/N0 = 9 dB in a 25 s capture by 5.6 dB.
 pub const HELD_MARGIN_DB: f32 = 4.0;
 
-/// Fewest analysed frames for the held power to decide (about 2 s at the default 1 kHz
-/// bins). In the sensitivity sweep's 0.25 s captures (200 presses a point) it found PWM
+/// Fewest analysed frames for the held power to find carriers (about 2 s at the default
+/// 1 kHz bins). In the sensitivity sweep's 0.25 s captures (200 presses a point) it found PWM
 /// carriers the peak-hold missed at 8 and 9 dB: presses decoded 11 → 31 and 68 → 106, but wrong
 /// codes 0 → 14 and 16 → 21. In a 25 s capture the peak-hold finds three PWM presses from
-/// 13 dB, the held power from 7 dB (they decode from 9 dB).
+/// 13 dB, the held power from 7 dB (they decode from 9 dB); beside a steady carrier 28 dB
+/// over the floor, from 13 and 11 dB.
 pub const HELD_MIN_FRAMES: u64 = 2000;
 
 fn one() -> usize {
@@ -1277,6 +1419,70 @@ mod tests {
         // to decide (HELD_MIN_FRAMES).
         let short = survey_of(RATE, &x[..1000 * 2048]);
         assert!(short.carriers.is_empty(), "{:?}", short.carriers);
+    }
+
+    /// The weak presses of [`weak_presses_in_a_long_capture_are_found_through_the_held_power`]
+    /// (6 000 frames of noise, presses 12 dB over the floor per bin while on, at `f` every
+    /// 2 s from sample `shift`) plus `extra`.
+    fn weak_presses_with(f: f64, shift: usize, extra: impl Fn(usize) -> Complex32) -> Survey {
+        let len = 6_000 * 2048;
+        let w = fir::blackman_harris(2048);
+        let (s1, s2): (f64, f64) = (w.iter().sum(), w.iter().map(|v| v * v).sum());
+        let floor = 0.01 * s2 / (s1 * s1);
+        let amp = (floor * 16.0).sqrt();
+        let mut rng = Rng::new(77);
+        let x: Vec<Complex32> = (0..len)
+            .map(|n| {
+                rng.cnoise(0.01) + ook(n + shift, amp, f, 700, 1400, 614_400, 4_096_000) + extra(n)
+            })
+            .collect();
+        survey_of(RATE, &x)
+    }
+
+    #[test]
+    fn weak_presses_beside_a_steady_carrier_are_found_through_the_held_power() {
+        // A steady carrier 40 dB over the floor found by peak-hold and average no longer
+        // keeps the held power from finding weak presses elsewhere in the band.
+        let f = 170_300.0;
+        let s = weak_presses_with(f, 0, |n| tone(0.1, -400_250.0, RATE, n, 0.7));
+        assert_eq!(s.carriers.len(), 2, "{:?}", s.carriers);
+        let steady = &s.carriers[0];
+        assert!(
+            (steady.offset_hz + 400_250.0).abs() < 1e3 && steady.continuous,
+            "{steady:?}"
+        );
+        let weak = &s.carriers[1];
+        assert!(
+            (weak.offset_hz - f).abs() < 1e3 && !weak.continuous,
+            "{weak:?}"
+        );
+        assert!(
+            weak.peak_db < s.peak_floor_db + 10.0,
+            "a peak-hold find: {weak:?}"
+        );
+    }
+
+    #[test]
+    fn a_strong_press_s_products_are_not_carriers_of_their_own() {
+        // A strong keyed carrier at −300 kHz (42 dB over the floor per bin) and a copy of
+        // it 30 dB weaker at +250 kHz (as an image or intermodulation product is), keyed
+        // with it, plus independent weak presses as strong as the copy at +170 kHz one
+        // second later: the copy peaks in held power while the
+        // strong carrier is the loudest bin and is taken for its product; the weak presses
+        // stay carriers.
+        let f = 170_300.0;
+        let (strong, copy) = (-300_250.0, 250_250.0);
+        let w = fir::blackman_harris(2048);
+        let (s1, s2): (f64, f64) = (w.iter().sum(), w.iter().map(|v| v * v).sum());
+        let amp = (0.01 * s2 / (s1 * s1) * 16.0).sqrt();
+        let s = weak_presses_with(f, 2_048_000, |n| {
+            ook(n, 31.6 * amp, strong, 700, 1400, 614_400, 4_096_000)
+                + ook(n, amp, copy, 700, 1400, 614_400, 4_096_000)
+        });
+        let offsets: Vec<f64> = s.carriers.iter().map(|c| c.offset_hz).collect();
+        assert_eq!(s.carriers.len(), 2, "{:?}", s.carriers);
+        assert!((offsets[0] - strong).abs() < 1e3, "{offsets:?}");
+        assert!((offsets[1] - f).abs() < 1e3, "{offsets:?}");
     }
 
     #[test]
