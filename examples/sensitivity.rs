@@ -38,6 +38,7 @@
 //!
 //! The machine is shared, so run time varies; the success figures do not (seeded).
 //! `SENSITIVITY_SHOW_WRONG=1` prints every wrong code beside the truth to standard error.
+//! *Unit off* counts presses whose right code came with a unit more than 5 % off the truth.
 
 use std::f64::consts::TAU;
 use std::path::{Path, PathBuf};
@@ -338,7 +339,12 @@ struct OokOutcome {
     credited: usize,
     press_ok: bool,
     wrong_codes: usize,
+    /// The right code reported with a unit more than [`UNIT_TOLERANCE`] off the truth.
+    unit_off: bool,
 }
+
+/// Relative error of a right code's unit beyond which it counts as off.
+const UNIT_TOLERANCE: f64 = 0.05;
 
 fn score_ooksift(code: Code, rep: &DecodeReport, truth: &str) -> OokOutcome {
     let tbits: Vec<bool> = truth.chars().map(|c| c == '1').collect();
@@ -346,10 +352,12 @@ fn score_ooksift(code: Code, rep: &DecodeReport, truth: &str) -> OokOutcome {
     let mut credited = 0;
     let mut press_ok = false;
     let mut wrong_codes = 0;
+    let mut unit_off = false;
     for c in &rep.codes {
         if c.line_code == code.name() && c.bits == truth {
             press_ok = true;
             credited += c.frames;
+            unit_off |= (c.unit_us / (code.unit_s() * 1e6) - 1.0).abs() > UNIT_TOLERANCE;
         } else {
             wrong_codes += 1;
             if std::env::var_os("SENSITIVITY_SHOW_WRONG").is_some() {
@@ -374,6 +382,7 @@ fn score_ooksift(code: Code, rep: &DecodeReport, truth: &str) -> OokOutcome {
         credited: credited.min(REPEATS),
         press_ok,
         wrong_codes,
+        unit_off,
     }
 }
 
@@ -386,6 +395,7 @@ struct Point {
     ook_credited: usize,
     ook_press: usize,
     ook_wrong_codes: usize,
+    ook_unit_off: usize,
     genie_frames: usize,
     genie_press: usize,
     chan_frames: usize,
@@ -458,6 +468,7 @@ fn run_point(
         pt.ook_credited += o.credited;
         pt.ook_press += usize::from(o.press_ok);
         pt.ook_wrong_codes += o.wrong_codes;
+        pt.ook_unit_off += usize::from(o.unit_off);
         // genie, on the same bytes
         let iq = std::fs::read(&path)?;
         let tb: Vec<bool> = bits.chars().map(|c| c == '1').collect();
@@ -632,8 +643,8 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             REPEATS,
             trials
         );
-        println!("| Eu/N0 dB | ooksift frame | ooksift credited | ooksift press | wrong codes | channel-given frame | channel-given press | genie frame | genie press | unit P(e|0) meas / theory | unit P(e|1) meas / theory |");
-        println!("|---|---|---|---|---|---|---|---|---|---|---|");
+        println!("| Eu/N0 dB | ooksift frame | ooksift credited | ooksift press | wrong codes | unit off > 5 % | channel-given frame | channel-given press | genie frame | genie press | unit P(e|0) meas / theory | unit P(e|1) meas / theory |");
+        println!("|---|---|---|---|---|---|---|---|---|---|---|---|");
         let mut points = Vec::new();
         let mut snr = from;
         let mut pi = 0u64;
@@ -652,11 +663,12 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
             let alpha = pt.alpha_sum / n_units as f64;
             let (p0, p1) = ook_errors(alpha, beta_opt(alpha));
             println!(
-                "| {snr:.1} | {:.3} | {:.3} | {:.3} | {} | {:.3} | {:.3} | {:.3} | {:.3} | {:.2e} / {:.2e} | {:.2e} / {:.2e} |",
+                "| {snr:.1} | {:.3} | {:.3} | {:.3} | {} | {} | {:.3} | {:.3} | {:.3} | {:.3} | {:.2e} / {:.2e} | {:.2e} / {:.2e} |",
                 pt.ook_frames as f64 / fr,
                 pt.ook_credited as f64 / fr,
                 pt.ook_press as f64 / trials as f64,
                 pt.ook_wrong_codes,
+                pt.ook_unit_off,
                 pt.chan_frames as f64 / fr,
                 pt.chan_press as f64 / trials as f64,
                 pt.genie_frames as f64 / fr,

@@ -619,7 +619,7 @@ impl Decoder {
             .filter(|r| r.3 || std::env::var_os("OOKSIFT_NO_GATE").is_some())
             .map(|r| (r.0, r.1, r.2));
         // Each fitted plan with its free reading at the fitted unit.
-        let fitted: Vec<(
+        let mut fitted: Vec<(
             crate::trellis::Plan,
             crate::trellis::Reading,
             &crate::trellis::PlanReading,
@@ -635,9 +635,47 @@ impl Decoder {
                 (plan, free, reading)
             })
             .collect();
+        // The PWM plan whose free reading lies best on the look, on its fitted bit period
+        // with the other common duty ratios (a weak burst's period is read well, its duty
+        // not), their units fitted closely.
+        let variants: Vec<_> = fitted
+            .iter()
+            .filter(|f| !crate::trellis::duty_variants(&f.0).is_empty())
+            .max_by(|a, b| a.1.fit(&llr, half).total_cmp(&b.1.fit(&llr, half)))
+            .map(|&(ref plan, _, reading)| {
+                crate::trellis::duty_variants(plan)
+                    .into_iter()
+                    .filter(|v| !fitted.iter().any(|f| same_plan(&f.0, v)))
+                    .map(|v| {
+                        let ev = if whole_marks_for(&v) {
+                            ev
+                        } else {
+                            crate::trellis::Evidence::Llr(&llr)
+                        };
+                        let (v, free) = crate::trellis::fit_unit(ev, &v, 0.05, 0.025);
+                        (v, free, reading)
+                    })
+                    .collect()
+            })
+            .unwrap_or_default();
+        fitted.extend(variants);
         // Plans compete by the likelihood of their best readings.
         let mut best: Option<(f64, PressDecode)> = None;
         for (plan, free, reading) in fitted {
+            let shape = std::env::var_os("OOKSIFT_DEBUG").is_some().then(|| {
+                let s: Vec<String> = plan
+                    .symbols
+                    .iter()
+                    .map(|s| format!("{}:{}/{}", u8::from(s.bit), s.mark, s.space))
+                    .collect();
+                format!(
+                    "unit {:.1}, symbols {}, header {:?}, closing {:?}",
+                    plan.unit,
+                    s.join(" "),
+                    plan.header,
+                    plan.closing
+                )
+            });
             let r = self
                 .trellis_with(burst, &win, plan, free, reading.line_code, known_bits)
                 .map(|(score, mut p)| {
@@ -650,10 +688,11 @@ impl Decoder {
             if std::env::var_os("OOKSIFT_DEBUG").is_some() {
                 if let Some((sc, p)) = &r {
                     eprintln!(
-                        "  trellis reading score {sc:.1}: {} {} x{}",
+                        "  trellis reading score {sc:.1}: {} {} x{} ({})",
                         p.line_code,
                         frames::bit_string(&p.bits),
-                        p.frames.len()
+                        p.frames.len(),
+                        shape.unwrap_or_default()
                     );
                 }
             }

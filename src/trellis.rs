@@ -1011,6 +1011,78 @@ pub fn fit_unit<'a>(
     (with(best.1), best.0)
 }
 
+/// Duty ratios a PWM plan is also tried with on its bit period (1:r for a 0, r:1 for a 1):
+/// the common ones (common practice: 1:2 and 1:3).
+pub const PWM_DUTY_RATIOS: [f64; 2] = [2.0, 3.0];
+
+/// The PWM plans of the other [`PWM_DUTY_RATIOS`] on `plan`'s bit period: the period of a weak
+/// burst is measured well (its fitted unit), how it parts into mark and space is not (a
+/// short mark's edges blur), so the likelihood picks among them. Header, closing mark and
+/// gap keep their lengths in samples. Empty unless `plan` is PWM-shaped: two symbols of one
+/// period, a short mark for 0 and a long one for 1.
+///
+/// ```
+/// use ooksift::trellis::{duty_variants, Plan, Symbol};
+///
+/// let sym = |mark, space, bit| Symbol { mark, space, bit };
+/// // 1:4 at 24 samples: a 120-sample bit.
+/// let plan = Plan {
+///     unit: 24.0,
+///     symbols: vec![sym(1.0, 4.0, false), sym(4.0, 1.0, true)],
+///     header: None,
+///     closing: Some(1.0),
+///     gap_min: 30.0,
+/// };
+/// let v = duty_variants(&plan);
+/// assert_eq!(v.len(), 2);
+/// assert_eq!((v[0].unit, v[0].symbols[0].space), (40.0, 2.0)); // 1:2 at 40
+/// assert_eq!((v[1].unit, v[1].symbols[0].space), (30.0, 3.0)); // 1:3 at 30
+/// assert_eq!(v[1].gap_min, 24.0); // 720 samples
+/// ```
+pub fn duty_variants(plan: &Plan) -> Vec<Plan> {
+    let [zero, one] = plan.symbols[..] else {
+        return Vec::new();
+    };
+    let period = zero.mark + zero.space;
+    let pwm = !zero.bit
+        && one.bit
+        && zero.mark < one.mark
+        && (one.mark + one.space - period).abs() < 1e-9
+        && plan.unit.is_finite()
+        && plan.unit > 0.0;
+    if !pwm {
+        return Vec::new();
+    }
+    let own_ratio = (zero.mark == one.space).then(|| zero.space / zero.mark);
+    PWM_DUTY_RATIOS
+        .iter()
+        .filter(|&&r| own_ratio != Some(r))
+        .map(|&r| {
+            let unit = plan.unit * period / (r + 1.0);
+            // Lengths in the new unit, as whole units (the search lays whole units).
+            let units = |x: f64| (x * plan.unit / unit).round().max(1.0);
+            Plan {
+                unit,
+                symbols: vec![
+                    Symbol {
+                        mark: 1.0,
+                        space: r,
+                        bit: false,
+                    },
+                    Symbol {
+                        mark: r,
+                        space: 1.0,
+                        bit: true,
+                    },
+                ],
+                header: plan.header.map(|(m, s)| (units(m), units(s))),
+                closing: plan.closing.map(units),
+                gap_min: plan.gap_min * plan.unit / unit,
+            }
+        })
+        .collect()
+}
+
 /// One frame of a [`Reading`].
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct FrameSpan {

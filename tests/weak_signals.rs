@@ -232,6 +232,28 @@ fn weak_presses_beside_a_steady_carrier_are_found_by_the_held_power() {
 }
 
 #[test]
+fn weak_pwm_presses_keep_their_duty_and_unit() {
+    // Truth: the synth truth file (1:3 PWM, 350 µs). At 10 dB beside the same steady carrier
+    // the marks' plans came out 1:2 and 1:4 only, so the presses were read under a plan of
+    // the wrong duty: right bits, unit 313 µs, two presses of three (measured before the
+    // trellis tried the common duty ratios on the fitted bit period, decode.rs).
+    let d = tempfile::tempdir().expect("tempdir");
+    let code = three_presses_beside(d.path(), "10", &["--tone", "-60000,0.3"]);
+    let unit = code["unit_us"].as_f64().expect("unit");
+    assert!((unit / 350.0 - 1.0).abs() < 0.05, "{code:?}");
+    let marks: Vec<f64> = code["clusters"]["marks"]
+        .as_array()
+        .expect("mark clusters")
+        .iter()
+        .filter_map(|c| c["units"].as_f64())
+        .collect();
+    assert!(
+        marks.iter().any(|&u| (u - 3.0).abs() < 0.3),
+        "long marks of 3 units: {marks:?}"
+    );
+}
+
+#[test]
 fn a_trellis_reading_read_back_one_bit_longer_is_not_kept() {
     // Truth: the synth truth file. The same three presses at 13 dB: the trellis reads the
     // last one's 8 frames right (24 bits and a closing mark it lays two units long), but read
