@@ -635,13 +635,14 @@ impl Decoder {
                 (plan, free, reading)
             })
             .collect();
-        // The PWM plan whose free reading lies best on the look, on its fitted bit period
-        // with the other common duty ratios (a weak burst's period is read well, its duty
-        // not), their units fitted closely.
+        // The plan whose free reading lies best on the look, when it is PWM, on its fitted
+        // bit period with the other common duty ratios (a weak burst's period is read well,
+        // its duty not), their units fitted closely. (Not when a PPM plan fits best: PWM
+        // variants then read a PPM burst as a wrong PWM code now and then.)
         let variants: Vec<_> = fitted
             .iter()
-            .filter(|f| !crate::trellis::duty_variants(&f.0).is_empty())
             .max_by(|a, b| a.1.fit(&llr, half).total_cmp(&b.1.fit(&llr, half)))
+            .filter(|f| !crate::trellis::duty_variants(&f.0).is_empty())
             .map(|&(ref plan, _, reading)| {
                 crate::trellis::duty_variants(plan)
                     .into_iter()
