@@ -618,6 +618,15 @@ impl Decoder {
             .into_iter()
             .filter(|r| r.3 || std::env::var_os("OOKSIFT_NO_GATE").is_some())
             .map(|r| (r.0, r.1, r.2));
+        // What a plan is searched on: whole marks for codes whose symbols differ in their
+        // marks, else the look's llr (see `whole_marks_for`).
+        let ev_for = |plan: &crate::trellis::Plan| {
+            if whole_marks_for(plan) {
+                ev
+            } else {
+                crate::trellis::Evidence::Llr(&llr)
+            }
+        };
         // Each fitted plan with its free reading at the fitted unit.
         let mut fitted: Vec<(
             crate::trellis::Plan,
@@ -626,12 +635,7 @@ impl Decoder {
         )> = ranked
             .into_iter()
             .map(|(_, plan, reading)| {
-                let ev = if whole_marks_for(&plan) {
-                    ev
-                } else {
-                    crate::trellis::Evidence::Llr(&llr)
-                };
-                let (plan, free) = crate::trellis::fit_unit(ev, &plan, 0.15, 0.025);
+                let (plan, free) = crate::trellis::fit_unit(ev_for(&plan), &plan, 0.15, 0.025);
                 (plan, free, reading)
             })
             .collect();
@@ -641,19 +645,14 @@ impl Decoder {
         // variants then read a PPM burst as a wrong PWM code now and then.)
         let variants: Vec<_> = fitted
             .iter()
-            .max_by(|a, b| a.1.fit(&llr, half).total_cmp(&b.1.fit(&llr, half)))
-            .filter(|f| !crate::trellis::duty_variants(&f.0).is_empty())
-            .map(|&(ref plan, _, reading)| {
+            .map(|f| (f, f.1.fit(&llr, half)))
+            .max_by(|a, b| a.1.total_cmp(&b.1))
+            .map(|(&(ref plan, _, reading), _)| {
                 crate::trellis::duty_variants(plan)
                     .into_iter()
                     .filter(|v| !fitted.iter().any(|f| same_plan(&f.0, v)))
                     .map(|v| {
-                        let ev = if whole_marks_for(&v) {
-                            ev
-                        } else {
-                            crate::trellis::Evidence::Llr(&llr)
-                        };
-                        let (v, free) = crate::trellis::fit_unit(ev, &v, 0.05, 0.025);
+                        let (v, free) = crate::trellis::fit_unit(ev_for(&v), &v, 0.05, 0.025);
                         (v, free, reading)
                     })
                     .collect()
@@ -663,20 +662,9 @@ impl Decoder {
         // Plans compete by the likelihood of their best readings.
         let mut best: Option<(f64, PressDecode)> = None;
         for (plan, free, reading) in fitted {
-            let shape = std::env::var_os("OOKSIFT_DEBUG").is_some().then(|| {
-                let s: Vec<String> = plan
-                    .symbols
-                    .iter()
-                    .map(|s| format!("{}:{}/{}", u8::from(s.bit), s.mark, s.space))
-                    .collect();
-                format!(
-                    "unit {:.1}, symbols {}, header {:?}, closing {:?}",
-                    plan.unit,
-                    s.join(" "),
-                    plan.header,
-                    plan.closing
-                )
-            });
+            let shape = std::env::var_os("OOKSIFT_DEBUG")
+                .is_some()
+                .then(|| plan.to_string());
             let r = self
                 .trellis_with(burst, &win, plan, free, reading.line_code, known_bits)
                 .map(|(score, mut p)| {

@@ -82,6 +82,23 @@ pub struct Plan {
     pub gap_min: f64,
 }
 
+impl std::fmt::Display for Plan {
+    /// `unit 29.5, symbols 0:1/3 1:3/1, header 8/4, closing 1` (lengths in units: mark/space).
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        write!(f, "unit {:.1}, symbols", self.unit)?;
+        for s in &self.symbols {
+            write!(f, " {}:{}/{}", u8::from(s.bit), s.mark, s.space)?;
+        }
+        if let Some((m, s)) = self.header {
+            write!(f, ", header {m}/{s}")?;
+        }
+        if let Some(c) = self.closing {
+            write!(f, ", closing {c}")?;
+        }
+        Ok(())
+    }
+}
+
 /// Grid steps per unit (fewer for long bursts, see [`MAX_CELLS`]).
 const STEPS_PER_UNIT: f64 = 8.0;
 /// Grid steps per unit of [`segment_coarse`].

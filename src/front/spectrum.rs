@@ -298,8 +298,8 @@ pub struct SpectrumSurvey {
     smooth: Vec<f32>,
     held: Vec<f32>,
     /// Per bin: the loudest bin of the smoothed power (FFT order) when `held` last rose —
-    /// what else was on the air then (as of a few frames before, see [`LOUDEST_EVERY`]). `u32`, as the powers are `f32`, so the update stays
-    /// one vector wide.
+    /// what else was on the air then (as of a few frames before, see [`LOUDEST_EVERY`]);
+    /// `u32`, as the powers are `f32`, so the update stays one vector wide.
     held_with: Vec<u32>,
     /// The loudest bin of the smoothed power, as of the last search ([`LOUDEST_EVERY`]).
     loudest: u32,
@@ -684,8 +684,8 @@ impl SpectrumSurvey {
         // run, and, in 8-bit captures, images and intermodulation products elsewhere, all
         // at their highest while it is on. So a run from held power that touches a carrier's
         // run, or whose held power peaked while a stronger bursty carrier was the loudest
-        // thing in the band, is taken for that carrier's. Not in short captures: there the held power finds
-        // presses too weak to decode reliably, see HELD_MIN_FRAMES.
+        // thing in the band, is taken for that carrier's. Not in short captures: there the
+        // held power finds presses too weak to decode reliably, see HELD_MIN_FRAMES.
         let held_db: Vec<f32> = held.iter().map(|&h| power_db(h)).collect();
         let held_thr = held_floor * db_to_ratio(HELD_MARGIN_DB);
         // Runs of bins with the spectrum they are measured on (`true`: held power).
