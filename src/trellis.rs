@@ -1034,9 +1034,10 @@ pub const PWM_DUTY_RATIOS: [f64; 2] = [2.0, 3.0];
 
 /// The PWM plans of the other [`PWM_DUTY_RATIOS`] on `plan`'s bit period: the period of a weak
 /// burst is measured well (its fitted unit), how it parts into mark and space is not (a
-/// short mark's edges blur), so the likelihood picks among them. Header, closing mark and
-/// gap keep their lengths in samples. Empty unless `plan` is PWM-shaped: two symbols of one
-/// period, a short mark for 0 and a long one for 1.
+/// short mark's edges blur), so the likelihood picks among them. Header and closing mark
+/// keep their lengths in samples as nearly as whole new units allow, the shortest gap
+/// exactly. Empty unless `plan` is PWM-shaped: two symbols of one period, a short mark for 0
+/// and a long one for 1.
 ///
 /// ```
 /// use ooksift::trellis::{duty_variants, Plan, Symbol};
@@ -1055,6 +1056,14 @@ pub const PWM_DUTY_RATIOS: [f64; 2] = [2.0, 3.0];
 /// assert_eq!((v[0].unit, v[0].symbols[0].space), (40.0, 2.0)); // 1:2 at 40
 /// assert_eq!((v[1].unit, v[1].symbols[0].space), (30.0, 3.0)); // 1:3 at 30
 /// assert_eq!(v[1].gap_min, 24.0); // 720 samples
+/// assert_eq!(v[1].closing, Some(1.0)); // 24 samples → one 30-sample unit
+///
+/// // PPM (one mark, two spaces): no variants.
+/// let ppm = Plan {
+///     symbols: vec![sym(1.0, 1.0, false), sym(1.0, 3.0, true)],
+///     ..plan
+/// };
+/// assert!(duty_variants(&ppm).is_empty());
 /// ```
 pub fn duty_variants(plan: &Plan) -> Vec<Plan> {
     let [zero, one] = plan.symbols[..] else {
