@@ -894,7 +894,16 @@ impl Decoder {
             // only when the edge readings' full frames had that length too.
             let framed =
                 |p: &PressDecode| p.bits.len() == n || known_bits.is_none_or(|k| p.bits.len() == k);
-            if let Some(p) = build(&r.marks).filter(|p| p.frames.len() >= 2 && framed(p)) {
+            // Its repeats are the only evidence it is not noise: they must agree more than
+            // noise read as frames of that length would by chance.
+            let beyond_chance = |p: &PressDecode| {
+                let exact = p.frames.iter().filter(|f| f.bits == p.bits).count();
+                let read = p.frames.len() + p.partial_frames;
+                frames::chance_agreement(p.bits.len(), read, exact) <= frames::MAX_CHANCE_AGREEMENT
+            };
+            if let Some(p) =
+                build(&r.marks).filter(|p| p.frames.len() >= 2 && framed(p) && beyond_chance(p))
+            {
                 if best
                     .as_ref()
                     .is_none_or(|b| rank(r.score, &p) > rank(b.0, &b.1))

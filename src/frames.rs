@@ -22,6 +22,12 @@
 //! Two frames that differ cannot be settled by a vote, so they are never enough. Finally the
 //! widths must look like a code: the median mark at least [`MIN_MARK_UNITS`] and the median
 //! space inside frames at most [`MAX_SPACE_UNITS`] units (sparse noise spikes fail both).
+//!
+//! A press the trellis read (`decode`) lays perfect widths by construction, so its repeats
+//! are its only evidence: their agreement must be one noise would show by chance at most
+//! [`MAX_CHANCE_AGREEMENT`] of the time ([`chance_agreement`]). Read by the trellis alone, a
+//! code of 13 bits or fewer needs three frames that read it exactly (more when the press
+//! holds other frames too).
 
 use crate::bursts::Burst;
 use crate::coding::{self, Layout, LineCode};
@@ -42,6 +48,8 @@ pub const MAX_SPACE_UNITS: f64 = 6.0;
 pub const SINGLE_FRAME_SCORE: f64 = 0.9;
 /// Bits a press with a single frame needs.
 pub const SINGLE_FRAME_BITS: usize = 8;
+/// Largest [`chance_agreement`] a press read by the trellis may have.
+pub const MAX_CHANCE_AGREEMENT: f64 = 1e-4;
 
 /// One frame of a press, in capture samples.
 #[derive(Debug, Clone, PartialEq)]
@@ -91,6 +99,31 @@ pub struct PressDecode {
     pub noise: f64,
     /// Sum of lag-1 IQ products over the press's marks (zero for envelopes).
     pub lag: Complex64,
+}
+
+/// How likely `exact` of `frames` frames of `bits` fair random bits are to read one same
+/// code by chance, bounded above by the sum over every set of `exact` frames:
+/// C(frames, exact) · 2^(−bits·(exact − 1)); 1 for fewer than two. It is what agreeing
+/// repeats prove when nothing else does: a trellis reading lays perfect widths by
+/// construction, and noise read as a short code of many frames holds two or three that
+/// agree (six frames of 8 bits: 15/256 for two). A press read by the trellis needs at most
+/// [`MAX_CHANCE_AGREEMENT`]: a 24-bit code two of four frames read exactly passes (3.6·10⁻⁷),
+/// an 8-bit one three of six does not (3.1·10⁻⁴).
+///
+/// ```
+/// use ooksift::frames::chance_agreement;
+///
+/// assert_eq!(chance_agreement(8, 6, 2), 15.0 / 256.0);
+/// assert!((chance_agreement(24, 4, 2) - 6.0 / 16_777_216.0).abs() < 1e-15);
+/// assert_eq!(chance_agreement(24, 4, 1), 1.0);
+/// ```
+pub fn chance_agreement(bits: usize, frames: usize, exact: usize) -> f64 {
+    if exact < 2 || exact > frames {
+        return 1.0;
+    }
+    // C(frames, exact) as a running product, exact in f64 for any count a press holds.
+    let choose = (0..exact).fold(1.0f64, |c, i| c * (frames - i) as f64 / (i + 1) as f64);
+    (choose * 0.5f64.powi((bits * (exact - 1)).min(i32::MAX as usize) as i32)).min(1.0)
 }
 
 /// Bits in which two frames differ (frames of one length).

@@ -329,6 +329,31 @@ fn sixty_seconds_of_noise_give_no_code_in_any_format() {
     }
 }
 
+/// 60 s of noise the trellis once read as a code (seed 513, found among 24 noise captures):
+/// six 8-bit frames that all differ, three of which agreed within a bit and were voted into
+/// a code. Agreement that chance gives noise this often is no evidence
+/// (`frames::chance_agreement`).
+#[test]
+fn noise_read_as_short_frames_that_agree_by_chance_is_no_code() {
+    let dir = tempfile::tempdir().expect("tempdir");
+    let s = SynthSpec {
+        format: "ci16_le".into(),
+        rate_hz: 48e3,
+        seed: 513,
+        min_duration_ms: 60_000.0,
+        ..SynthSpec::default()
+    };
+    let out = dir.path().join("noise.ci16_le");
+    write_capture(&s, &out, true).expect("synth writes");
+    let r = decode_json(&out, &["--rate", "48000"]);
+    assert_eq!(r["codes"].as_array().map(Vec::len), Some(0), "{r}");
+    // The bursts were read and set aside, not skipped.
+    assert!(
+        r["undecoded_bursts"].as_u64().is_some_and(|n| n > 10),
+        "{r}"
+    );
+}
+
 /// Issue 4: 60 s of a superregenerative receiver's idle chatter and nothing else (the synth's
 /// chatter model, common practice: full-level pulses of random width, on about half the
 /// time) give no code, in WAV and in every raw envelope format.
