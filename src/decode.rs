@@ -606,7 +606,7 @@ impl Decoder {
                         );
                     }
                     // A plan whose coarse reading holds no repeat, or lies far off the
-                    // envelope, is not worth fitting (nine fine searches).
+                    // envelope, is not worth fitting (five to seven fine searches).
                     let promising = free.frames.len() >= 2 && fit >= MIN_COARSE_FIT;
                     (free.score, plan, reading, promising)
                 })
