@@ -659,6 +659,24 @@ impl Decoder {
             })
             .unwrap_or_default();
         fitted.extend(variants);
+        // The best-fitting plan with a header, also with the header's space a unit or two
+        // longer or shorter, at its fitted unit (`trellis::header_variants`).
+        let headers: Vec<_> = fitted
+            .iter()
+            .map(|f| (f, f.1.fit(&llr, half)))
+            .max_by(|a, b| a.1.total_cmp(&b.1))
+            .map(|(&(ref plan, _, reading), _)| {
+                crate::trellis::header_variants(plan)
+                    .into_iter()
+                    .filter(|v| !fitted.iter().any(|f| same_plan(&f.0, v)))
+                    .map(|v| {
+                        let free = crate::trellis::segment(ev_for(&v), &v);
+                        (v, free, reading)
+                    })
+                    .collect()
+            })
+            .unwrap_or_default();
+        fitted.extend(headers);
         // Plans compete by the likelihood of their best readings.
         let mut best: Option<(f64, PressDecode)> = None;
         for (plan, free, reading) in fitted {

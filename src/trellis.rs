@@ -1219,6 +1219,49 @@ pub fn duty_variants(plan: &Plan) -> Vec<Plan> {
         .collect()
 }
 
+/// Units a header's space is also tried longer or shorter by.
+pub const HEADER_SPACE_STEPS: [f64; 4] = [-2.0, -1.0, 1.0, 2.0];
+
+/// `plan` with its header's space [`HEADER_SPACE_STEPS`] units longer or shorter (at least
+/// one unit): a header space measured from a weak burst's marks is often a unit or two off
+/// (its edges blur into the noise), and a plan with the wrong one lays the frame's first
+/// symbol wrong in every repeat alike (measured: a PPM code with an 8/4 header read under
+/// 8/6 took its first bit as the other symbol), so the likelihood picks among them. Empty
+/// without a header.
+///
+/// ```
+/// use ooksift::trellis::{header_variants, Plan, Symbol};
+///
+/// let sym = |mark, space, bit| Symbol { mark, space, bit };
+/// let plan = Plan {
+///     unit: 32.0,
+///     symbols: vec![sym(1.0, 1.0, false), sym(1.0, 3.0, true)],
+///     header: Some((8.0, 2.0)),
+///     closing: Some(1.0),
+///     gap_min: 10.0,
+/// };
+/// let spaces: Vec<f64> = header_variants(&plan)
+///     .iter()
+///     .map(|v| v.header.unwrap().1)
+///     .collect();
+/// assert_eq!(spaces, [1.0, 3.0, 4.0]); // 0 units is no space
+/// assert!(header_variants(&Plan { header: None, ..plan }).is_empty());
+/// ```
+pub fn header_variants(plan: &Plan) -> Vec<Plan> {
+    let Some((mark, space)) = plan.header else {
+        return Vec::new();
+    };
+    HEADER_SPACE_STEPS
+        .iter()
+        .map(|d| space + d)
+        .filter(|&s| s >= 1.0)
+        .map(|s| Plan {
+            header: Some((mark, s)),
+            ..plan.clone()
+        })
+        .collect()
+}
+
 /// One frame of a [`Reading`].
 #[derive(Debug, Clone, Default, PartialEq)]
 pub struct FrameSpan {

@@ -262,3 +262,37 @@ fn a_trellis_reading_read_back_one_bit_longer_is_not_kept() {
     let d = tempfile::tempdir().expect("tempdir");
     three_presses_read_as_one_code(d.path(), "13");
 }
+
+#[test]
+fn a_weak_header_read_a_unit_or_two_off_does_not_change_the_first_bit() {
+    // Truth: the synth truth file (PPM 32 bits, 400 µs, header 8/4 units, 4 frames,
+    // 12 dB, amplitude 0.05 as in `examples/sensitivity`). The marks' plans gave the header
+    // 8/6: the trellis laid the first "1" as a "0" in three frames alike and reported
+    // `01100011…` (measured before the header spaces were varied, `trellis::header_variants`).
+    let d = tempfile::tempdir().expect("tempdir");
+    let out = d.path().join("header.cu8");
+    let want = "11100011010101100000001010010101";
+    synth(
+        &out,
+        &[
+            "--rate",
+            "2048000",
+            "--amplitude",
+            "0.05",
+            "--snr-db",
+            "12",
+            "--seed",
+            "9",
+            "--press",
+            &format!("ppm:{want},unit_us=400,repeats=4,offset_hz=100000"),
+        ],
+    );
+    let report = decode_json(&out, &["--rate", "2048000"]);
+    let codes = report["codes"].as_array().expect("codes");
+    assert_eq!(codes.len(), 1, "{report}");
+    assert_eq!(codes[0]["bits"].as_str(), Some(want), "{report}");
+    assert!(
+        codes[0]["frames"].as_u64().is_some_and(|n| n >= 3),
+        "{report}"
+    );
+}
