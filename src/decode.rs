@@ -628,11 +628,7 @@ impl Decoder {
             }
         };
         // Each fitted plan with its free reading at the fitted unit.
-        let mut fitted: Vec<(
-            crate::trellis::Plan,
-            crate::trellis::Reading,
-            &crate::trellis::PlanReading,
-        )> = ranked
+        let mut fitted: Vec<Fitted> = ranked
             .into_iter()
             .map(|(_, plan, reading)| {
                 let (plan, free) = crate::trellis::fit_unit(ev_for(&plan), &plan, 0.15, 0.025);
@@ -643,11 +639,8 @@ impl Decoder {
         // bit period with the other common duty ratios (a weak burst's period is read well,
         // its duty not), their units fitted closely. (Not when a PPM plan fits best: PWM
         // variants then read a PPM burst as a wrong PWM code now and then.)
-        let variants: Vec<_> = fitted
-            .iter()
-            .map(|f| (f, f.1.fit(&llr, half)))
-            .max_by(|a, b| a.1.total_cmp(&b.1))
-            .map(|(&(ref plan, _, reading), _)| {
+        let variants: Vec<_> = best_fitting(&fitted, &llr, half)
+            .map(|&(ref plan, _, reading)| {
                 crate::trellis::duty_variants(plan)
                     .into_iter()
                     .filter(|v| !fitted.iter().any(|f| same_plan(&f.0, v)))
@@ -661,11 +654,8 @@ impl Decoder {
         fitted.extend(variants);
         // The best-fitting plan with a header, also with the header's space a unit or two
         // longer or shorter, at its fitted unit (`trellis::header_variants`).
-        let headers: Vec<_> = fitted
-            .iter()
-            .map(|f| (f, f.1.fit(&llr, half)))
-            .max_by(|a, b| a.1.total_cmp(&b.1))
-            .map(|(&(ref plan, _, reading), _)| {
+        let headers: Vec<_> = best_fitting(&fitted, &llr, half)
+            .map(|&(ref plan, _, reading)| {
                 crate::trellis::header_variants(plan)
                     .into_iter()
                     .filter(|v| !fitted.iter().any(|f| same_plan(&f.0, v)))
@@ -1325,6 +1315,26 @@ const MIN_COARSE_FIT: f64 = 0.5;
 /// Smoothing widths (µs) the trellis stage reads timing plans from, besides the first and
 /// second passes' marks.
 const LADDER_US: [f64; 3] = [120.0, 250.0, 500.0];
+
+/// A fitted plan with its free reading and the marks' reading it came from.
+type Fitted<'r> = (
+    crate::trellis::Plan,
+    crate::trellis::Reading,
+    &'r crate::trellis::PlanReading,
+);
+
+/// The fitted plan whose free reading lies best on the look `llr` ([`crate::trellis::Reading::fit`]).
+fn best_fitting<'f, 'r>(
+    fitted: &'f [Fitted<'r>],
+    llr: &[f32],
+    half: f64,
+) -> Option<&'f Fitted<'r>> {
+    fitted
+        .iter()
+        .map(|f| (f, f.1.fit(llr, half)))
+        .max_by(|a, b| a.1.total_cmp(&b.1))
+        .map(|(f, _)| f)
+}
 
 /// Plans alike enough to give the same search.
 fn same_plan(a: &crate::trellis::Plan, b: &crate::trellis::Plan) -> bool {
