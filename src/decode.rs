@@ -639,33 +639,16 @@ impl Decoder {
         // bit period with the other common duty ratios (a weak burst's period is read well,
         // its duty not), their units fitted closely. (Not when a PPM plan fits best: PWM
         // variants then read a PPM burst as a wrong PWM code now and then.)
-        let variants: Vec<_> = best_fitting(&fitted, &llr, half)
-            .map(|&(ref plan, _, reading)| {
-                crate::trellis::duty_variants(plan)
-                    .into_iter()
-                    .filter(|v| !fitted.iter().any(|f| same_plan(&f.0, v)))
-                    .map(|v| {
-                        let (v, free) = crate::trellis::fit_unit(ev_for(&v), &v, 0.05, 0.025);
-                        (v, free, reading)
-                    })
-                    .collect()
-            })
-            .unwrap_or_default();
-        fitted.extend(variants);
+        let duty = variants_of(&fitted, &llr, half, crate::trellis::duty_variants, |v| {
+            crate::trellis::fit_unit(ev_for(&v), &v, 0.05, 0.025)
+        });
+        fitted.extend(duty);
         // The best-fitting plan with a header, also with the header's space a unit or two
         // longer or shorter, at its fitted unit (`trellis::header_variants`).
-        let headers: Vec<_> = best_fitting(&fitted, &llr, half)
-            .map(|&(ref plan, _, reading)| {
-                crate::trellis::header_variants(plan)
-                    .into_iter()
-                    .filter(|v| !fitted.iter().any(|f| same_plan(&f.0, v)))
-                    .map(|v| {
-                        let free = crate::trellis::segment(ev_for(&v), &v);
-                        (v, free, reading)
-                    })
-                    .collect()
-            })
-            .unwrap_or_default();
+        let headers = variants_of(&fitted, &llr, half, crate::trellis::header_variants, |v| {
+            let free = crate::trellis::segment(ev_for(&v), &v);
+            (v, free)
+        });
         fitted.extend(headers);
         // Plans compete by the likelihood of their best readings.
         let mut best: Option<(f64, PressDecode)> = None;
@@ -1334,6 +1317,29 @@ fn best_fitting<'f, 'r>(
         .map(|f| (f, f.1.fit(llr, half)))
         .max_by(|a, b| a.1.total_cmp(&b.1))
         .map(|(f, _)| f)
+}
+
+/// The plans `make` derives from the best-fitting fitted plan ([`best_fitting`]), those not
+/// fitted already, each with the free reading `search` gives it, credited to the same
+/// marks' reading.
+fn variants_of<'r>(
+    fitted: &[Fitted<'r>],
+    llr: &[f32],
+    half: f64,
+    make: impl Fn(&crate::trellis::Plan) -> Vec<crate::trellis::Plan>,
+    search: impl Fn(crate::trellis::Plan) -> (crate::trellis::Plan, crate::trellis::Reading),
+) -> Vec<Fitted<'r>> {
+    let Some(&(ref plan, _, reading)) = best_fitting(fitted, llr, half) else {
+        return Vec::new();
+    };
+    make(plan)
+        .into_iter()
+        .filter(|v| !fitted.iter().any(|f| same_plan(&f.0, v)))
+        .map(|v| {
+            let (v, free) = search(v);
+            (v, free, reading)
+        })
+        .collect()
 }
 
 /// Plans alike enough to give the same search.
