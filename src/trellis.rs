@@ -756,14 +756,45 @@ const FROM_FULL: Code = 1 << 31;
 /// Most symbols a plan may have (their index must fit above [`SYMBOL_SHIFT`]).
 const MAX_SYMBOLS: usize = 1 << 11;
 
-/// `dst[i] = max(dst[i], src[i] + add)`, noting `code` where it rises — the step of the search
-/// that moves every bit count at once. Four cells at a time as fixed-size arrays: free
-/// searches move runs of exactly four bit counts ([`crate::frames::MIN_BITS`]), too short for
-/// the vectoriser's loop over a slice, and [`relax4`] compiles to one vector of each. Not
-/// inlined: inside [`search_grid`] the compiler no longer sees that the score and code rows
-/// cannot overlap and leaves the four cells scalar, with a branch (measured: 20 % of the
-/// whole-chain fuzz corpora's decode time, readings bit-identical).
+/// One element laid from row `t` for every length in `lens` (grid steps): for each length,
+/// `dst[i] = max(dst[i], src[i] + add(len))` in the row `len` steps on, noting
+/// `code | len` where it rises — the step of the search that moves every bit count at once.
+/// `src` is a run of row `t`; `tail` and `tail_codes` are the rows after `t` (row `t + len`
+/// starts at `(len − 1)·ns`), and the run written starts `at` cells into each row.
+///
+/// All lengths in one call, four cells at a time as fixed-size arrays: free searches move
+/// runs of exactly four bit counts ([`crate::frames::MIN_BITS`]), too short for the
+/// vectoriser's loop over a slice, and [`relax4`] compiles to one vector of each. Not
+/// inlined: inside [`search_grid`] the compiler no longer sees that the row read and the
+/// rows written cannot overlap and leaves the four cells scalar, with a branch (measured:
+/// 20 % of the whole-chain fuzz corpora's decode time, readings bit-identical).
+#[allow(clippy::too_many_arguments)]
 #[inline(never)]
+fn relax_lengths(
+    src: &[f32],
+    add: impl Fn(usize) -> f32,
+    lens: std::ops::RangeInclusive<usize>,
+    tail: &mut [f32],
+    tail_codes: &mut [Code],
+    ns: usize,
+    at: usize,
+    code: Code,
+) {
+    let k = src.len();
+    for len in lens {
+        let from = (len - 1) * ns + at;
+        relax_run(
+            src,
+            add(len),
+            &mut tail[from..from + k],
+            &mut tail_codes[from..from + k],
+            code | len as Code,
+        );
+    }
+}
+
+/// `dst[i] = max(dst[i], src[i] + add)`, noting `code` where it rises.
+#[inline(always)]
 fn relax_run(src: &[f32], add: f32, dst: &mut [f32], codes: &mut [Code], code: Code) {
     let mut d4 = dst.chunks_exact_mut(4);
     let mut c4 = codes.chunks_exact_mut(4);
@@ -860,22 +891,6 @@ fn search_grid<M: MarkScores>(
             relax(score, codes, idx(to, t + len), v, flags | len as Code);
         }
     };
-    // Row `t` to read and row `t + len` to write (`len ≥ 1`).
-    fn rows<'s>(
-        score: &'s mut [f32],
-        codes: &'s mut [Code],
-        ns: usize,
-        t: usize,
-        len: usize,
-    ) -> (&'s [f32], &'s mut [f32], &'s mut [Code]) {
-        let (head, tail) = score.split_at_mut((t + 1) * ns);
-        let to = (len - 1) * ns..len * ns;
-        (
-            &head[t * ns..],
-            &mut tail[to.clone()],
-            &mut codes[(t + len) * ns..(t + len + 1) * ns],
-        )
-    }
     // Consecutive runs of states: B₀…B_{K−1} (read by the marks), B₁…B_K (written by the
     // spaces), and E_{s,1}…E_{s,K} per symbol.
     let b_from = st.b(0)..st.b(0) + k_max;
@@ -894,7 +909,6 @@ fn search_grid<M: MarkScores>(
     let mut best_end = (neg, NONE);
     let mut best_final = (0.0f32, NONE);
     let (closing, header, syms) = (grid.closing, grid.header, &grid.syms);
-    let len_code = |len: usize| len as Code;
 
     for t in 0..=n {
         if t >= gap_min {
@@ -925,31 +939,35 @@ fn search_grid<M: MarkScores>(
                 lay(&mut score, &mut codes, t, h, space, false, st.b(0), 0);
             }
         }
-        // E_{s,k} → B_k: the symbol's space leads to the next symbol.
-        for (s, &(_, (s0, s1))) in syms.iter().enumerate() {
-            let code = (s as Code) << SYMBOL_SHIFT;
-            for len in s0..=s1.min(n - t) {
-                let (src, dst, dst_codes) = rows(&mut score, &mut codes, ns, t, len);
-                relax_run(
-                    &src[e_run(s)],
-                    0.0,
-                    &mut dst[b_to.clone()],
-                    &mut dst_codes[b_to.clone()],
-                    code | len_code(len),
+        // E_{s,k} → B_k: the symbol's space leads to the next symbol; B_k → E_{s,k+1}: a
+        // data symbol's mark (in open frames also B_K → E_{s,K}, below).
+        {
+            let (head, tail) = score.split_at_mut((t + 1) * ns);
+            let row = &head[t * ns..];
+            let tail_codes = &mut codes[(t + 1) * ns..];
+            let left = n - t;
+            for (s, &(_, (s0, s1))) in syms.iter().enumerate() {
+                relax_lengths(
+                    &row[e_run(s)],
+                    |_| 0.0,
+                    s0..=s1.min(left),
+                    tail,
+                    tail_codes,
+                    ns,
+                    b_to.start,
+                    (s as Code) << SYMBOL_SHIFT,
                 );
             }
-        }
-        // B_k → E_{s,k+1}: a data symbol's mark; in open frames also B_K → E_{s,K}.
-        for (s, &((m0, m1), _)) in syms.iter().enumerate() {
-            for len in m0..=m1.min(n - t) {
-                let m = scores.mark(t, t + len);
-                let (src, dst, dst_codes) = rows(&mut score, &mut codes, ns, t, len);
-                relax_run(
-                    &src[b_from.clone()],
-                    m,
-                    &mut dst[e_run(s)],
-                    &mut dst_codes[e_run(s)],
-                    len_code(len),
+            for (s, &((m0, m1), _)) in syms.iter().enumerate() {
+                relax_lengths(
+                    &row[b_from.clone()],
+                    |len| scores.mark(t, t + len),
+                    m0..=m1.min(left),
+                    tail,
+                    tail_codes,
+                    ns,
+                    e_run(s).start,
+                    0,
                 );
             }
         }
