@@ -760,7 +760,9 @@ const MAX_SYMBOLS: usize = 1 << 11;
 /// `dst[i] = max(dst[i], src[i] + add(len))` in the row `len` steps on, noting
 /// `code | len` where it rises — the step of the search that moves every bit count at once.
 /// `src` is a run of row `t`; `tail` and `tail_codes` are the rows after `t` (row `t + len`
-/// starts at `(len − 1)·ns`), and the run written starts `at` cells into each row.
+/// starts at `(len − 1)·ns`), and the run written starts `at` cells into each row. `full`
+/// is the score of `B_K` in row `t` for a data mark of an open frame (also laid from `B_K`
+/// into `E_{s,K}`), `−∞` otherwise.
 ///
 /// All lengths in one call, four cells at a time as fixed-size arrays: free searches move
 /// runs of exactly four bit counts ([`crate::frames::MIN_BITS`]), too short for the
@@ -774,6 +776,7 @@ fn relax_lengths(
     src: &[f32],
     add: impl Fn(usize) -> f32,
     lens: std::ops::RangeInclusive<usize>,
+    full: f32,
     tail: &mut [f32],
     tail_codes: &mut [Code],
     ns: usize,
@@ -783,13 +786,20 @@ fn relax_lengths(
     let k = src.len();
     for len in lens {
         let from = (len - 1) * ns + at;
-        relax_run(
-            src,
-            add(len),
-            &mut tail[from..from + k],
-            &mut tail_codes[from..from + k],
-            code | len as Code,
-        );
+        let add = add(len);
+        let (dst, dst_codes) = (&mut tail[from..from + k], &mut tail_codes[from..from + k]);
+        relax_run(src, add, dst, dst_codes, code | len as Code);
+        // An open frame's mark from `B_K` into the run's last cell `E_{s,K}`, after the one
+        // from `B_{K−1}` (the order of candidates the search keeps).
+        if full > f32::NEG_INFINITY {
+            let v = full + add;
+            if let (Some(d), Some(c)) = (dst.last_mut(), dst_codes.last_mut()) {
+                if v > *d {
+                    *d = v;
+                    *c = FROM_FULL | len as Code;
+                }
+            }
+        }
     }
 }
 
@@ -940,17 +950,20 @@ fn search_grid<M: MarkScores>(
             }
         }
         // E_{s,k} → B_k: the symbol's space leads to the next symbol; B_k → E_{s,k+1}: a
-        // data symbol's mark (in open frames also B_K → E_{s,K}, below).
+        // data symbol's mark, and in open frames also B_K → E_{s,K}.
         {
             let (head, tail) = score.split_at_mut((t + 1) * ns);
             let row = &head[t * ns..];
             let tail_codes = &mut codes[(t + 1) * ns..];
             let left = n - t;
+            // In open frames a data mark also follows B_K, into E_{s,K}.
+            let open_full = if st.open { row[st.b(k_max)] } else { neg };
             for (s, &(_, (s0, s1))) in syms.iter().enumerate() {
                 relax_lengths(
                     &row[e_run(s)],
                     |_| 0.0,
                     s0..=s1.min(left),
+                    neg,
                     tail,
                     tail_codes,
                     ns,
@@ -963,6 +976,7 @@ fn search_grid<M: MarkScores>(
                     &row[b_from.clone()],
                     |len| scores.mark(t, t + len),
                     m0..=m1.min(left),
+                    open_full,
                     tail,
                     tail_codes,
                     ns,
@@ -972,12 +986,6 @@ fn search_grid<M: MarkScores>(
             }
         }
         let full = score[idx(st.b(k_max), t)];
-        if st.open && full > neg {
-            for (s, &(mark, _)) in syms.iter().enumerate() {
-                let to = st.e(s, k_max);
-                lay(&mut score, &mut codes, t, full, mark, true, to, FROM_FULL);
-            }
-        }
         // B_K → C: the closing mark.
         if let (Some(mark), true) = (closing, full > neg) {
             lay(&mut score, &mut codes, t, full, mark, true, States::C, 0);
