@@ -875,32 +875,36 @@ fn search_grid<M: MarkScores>(
         pos: pos as u32,
     };
     // One candidate into one cell.
-    let relax = |score: &mut [f32], codes: &mut [Code], to: usize, v: f32, code: Code| {
+    #[inline(always)]
+    fn relax(score: &mut [f32], codes: &mut [Code], to: usize, v: f32, code: Code) {
         if v > score[to] {
             score[to] = v;
             codes[to] = code;
         }
-    };
+    }
     // One element of `lens` grid steps from position `t` (from a state scoring `from`) into
-    // state `to` at its end: a mark adds its score, a space nothing; the code is the length
-    // with `flags`.
-    let lay = |score: &mut [f32],
-               codes: &mut [Code],
-               t: usize,
-               from: f32,
-               (l0, l1): (usize, usize),
-               mark: bool,
-               to: usize,
-               flags: Code| {
+    // state `to` at its end (row `t + len` at `(t + len)·ns`): a mark adds its score, a space
+    // nothing; the code is the length with `flags`. (Functions rather than closures, so
+    // builds that inline little, as the fuzz targets', still inline them.)
+    #[allow(clippy::too_many_arguments)]
+    #[inline(always)]
+    fn lay<M: MarkScores>(
+        (score, codes): (&mut [f32], &mut [Code]),
+        (t, n, ns): (usize, usize, usize),
+        from: f32,
+        (l0, l1): (usize, usize),
+        mark: Option<&M>,
+        to: usize,
+        flags: Code,
+    ) {
         for len in l0..=l1.min(n - t) {
-            let v = if mark {
-                from + scores.mark(t, t + len)
-            } else {
-                from
+            let v = match mark {
+                Some(m) => from + m.mark(t, t + len),
+                None => from,
             };
-            relax(score, codes, idx(to, t + len), v, flags | len as Code);
+            relax(score, codes, (t + len) * ns + to, v, flags | len as Code);
         }
-    };
+    }
     // Consecutive runs of states: B₀…B_{K−1} (read by the marks), B₁…B_K (written by the
     // spaces), and E_{s,1}…E_{s,K} per symbol.
     let b_from = st.b(0)..st.b(0) + k_max;
@@ -939,14 +943,14 @@ fn search_grid<M: MarkScores>(
         score[idx(States::A, t)] = a;
         starts[t] = from;
         match header {
-            Some((mark, _)) => lay(&mut score, &mut codes, t, a, mark, true, States::H, 0),
+            Some((mark, _)) => lay((&mut score, &mut codes), (t, n, ns), a, mark, Some(scores), States::H, 0),
             // B₀ from A at the same position: length 0.
             None => relax(&mut score, &mut codes, idx(st.b(0), t), a, 0),
         }
         if let Some((_, space)) = header {
             let h = score[idx(States::H, t)];
             if h > neg {
-                lay(&mut score, &mut codes, t, h, space, false, st.b(0), 0);
+                lay((&mut score, &mut codes), (t, n, ns), h, space, None::<&M>, st.b(0), 0);
             }
         }
         // E_{s,k} → B_k: the symbol's space leads to the next symbol; B_k → E_{s,k+1}: a
@@ -988,7 +992,7 @@ fn search_grid<M: MarkScores>(
         let full = score[idx(st.b(k_max), t)];
         // B_K → C: the closing mark.
         if let (Some(mark), true) = (closing, full > neg) {
-            lay(&mut score, &mut codes, t, full, mark, true, States::C, 0);
+            lay((&mut score, &mut codes), (t, n, ns), full, mark, Some(scores), States::C, 0);
         }
         for &s in &ends {
             let v = score[idx(s, t)];
