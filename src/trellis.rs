@@ -943,14 +943,30 @@ fn search_grid<M: MarkScores>(
         score[idx(States::A, t)] = a;
         starts[t] = from;
         match header {
-            Some((mark, _)) => lay((&mut score, &mut codes), (t, n, ns), a, mark, Some(scores), States::H, 0),
+            Some((mark, _)) => lay(
+                (&mut score, &mut codes),
+                (t, n, ns),
+                a,
+                mark,
+                Some(scores),
+                States::H,
+                0,
+            ),
             // B₀ from A at the same position: length 0.
             None => relax(&mut score, &mut codes, idx(st.b(0), t), a, 0),
         }
         if let Some((_, space)) = header {
             let h = score[idx(States::H, t)];
             if h > neg {
-                lay((&mut score, &mut codes), (t, n, ns), h, space, None::<&M>, st.b(0), 0);
+                lay(
+                    (&mut score, &mut codes),
+                    (t, n, ns),
+                    h,
+                    space,
+                    None::<&M>,
+                    st.b(0),
+                    0,
+                );
             }
         }
         // E_{s,k} → B_k: the symbol's space leads to the next symbol; B_k → E_{s,k+1}: a
@@ -992,7 +1008,15 @@ fn search_grid<M: MarkScores>(
         let full = score[idx(st.b(k_max), t)];
         // B_K → C: the closing mark.
         if let (Some(mark), true) = (closing, full > neg) {
-            lay((&mut score, &mut codes), (t, n, ns), full, mark, Some(scores), States::C, 0);
+            lay(
+                (&mut score, &mut codes),
+                (t, n, ns),
+                full,
+                mark,
+                Some(scores),
+                States::C,
+                0,
+            );
         }
         for &s in &ends {
             let v = score[idx(s, t)];
