@@ -188,8 +188,13 @@ impl Restorer {
         for chunk in alphas.chunks(GROUP) {
             let mut group = [None; GROUP];
             group[..chunk.len()].copy_from_slice(chunk);
-            restore_smoothed(self.state, y, group, k, &mut ring, &mut bufs);
-            splits.extend(bufs.iter().take(chunk.len()).map(|b| split(b)));
+            let ranges = restore_smoothed(self.state, y, group, k, &mut ring, &mut bufs);
+            splits.extend(
+                bufs.iter()
+                    .zip(ranges)
+                    .take(chunk.len())
+                    .map(|(b, range)| split(b, range)),
+            );
         }
         let none = splits.first().copied().flatten()?;
         let mut best: (Split, Option<f64>) = (none, None);
@@ -225,7 +230,8 @@ const GROUP: usize = 4;
 /// For each of `GROUP` coefficients, [`Restorer::restore`] from `state` followed by a
 /// trailing moving average of `k` samples, into `outs` (the same arithmetic, in the same
 /// order, as the two passes one after the other for each candidate alone). `ring` is scratch
-/// space for the averages.
+/// space for the averages. Returns each output's range, the least and greatest of its finite
+/// values, taken in the same pass (`(∞, −∞)` when there are none).
 fn restore_smoothed(
     state: Option<(f64, f64)>,
     y: &[f32],
@@ -233,7 +239,7 @@ fn restore_smoothed(
     k: usize,
     ring: &mut Vec<f32>,
     outs: &mut [Vec<f32>; GROUP],
-) {
+) -> [(f32, f32); GROUP] {
     // An average longer than the block never wraps, so a longer `k` (an absurd rate in a
     // header makes one of 10⁸) computes the same with a block-long ring.
     let k = k.clamp(1, y.len().max(1));
@@ -247,6 +253,7 @@ fn restore_smoothed(
     let (mut yp, xp0) = state.unwrap_or((first, first));
     let mut xp = [xp0; GROUP];
     let mut acc = [0f64; GROUP];
+    let mut ranges = [(f32::INFINITY, f32::NEG_INFINITY); GROUP];
     // Lanes without a coefficient compute with 1 and take the input instead.
     let a4 = alphas.map(|a| a.unwrap_or(1.0));
     let pos_cut = k * GROUP;
@@ -277,14 +284,19 @@ fn restore_smoothed(
                 q[g] = (acc[g] / n) as f32;
             }
         }
-        for (o, &val) in outs.iter_mut().zip(&q) {
+        for ((o, &val), (lo, hi)) in outs.iter_mut().zip(&q).zip(ranges.iter_mut()) {
             o.push(val);
+            if val.is_finite() {
+                *lo = if val < *lo { val } else { *lo };
+                *hi = if val > *hi { val } else { *hi };
+            }
         }
         pos += GROUP;
         if pos == pos_cut {
             pos = 0;
         }
     }
+    ranges
 }
 
 /// The best two-class split of a window (Otsu's method on a 256-bin histogram).
@@ -298,24 +310,8 @@ struct Split {
     high_mean: f64,
 }
 
-fn split(v: &[f32]) -> Option<Split> {
-    // Range of the finite values, in four lanes (min and max give the same extremes in any
-    // order; the lanes only shorten the chain of dependent comparisons).
-    let (mut lo4, mut hi4) = ([f32::INFINITY; 4], [f32::NEG_INFINITY; 4]);
-    for quad in v.chunks(4) {
-        for ((lo, hi), &x) in lo4.iter_mut().zip(hi4.iter_mut()).zip(quad) {
-            if x.is_finite() {
-                *lo = if x < *lo { x } else { *lo };
-                *hi = if x > *hi { x } else { *hi };
-            }
-        }
-    }
-    let lo = lo4
-        .iter()
-        .fold(f32::INFINITY, |a, &b| if b < a { b } else { a });
-    let hi = hi4
-        .iter()
-        .fold(f32::NEG_INFINITY, |a, &b| if b > a { b } else { a });
+/// `range` is the least and greatest finite values of `v`.
+fn split(v: &[f32], (lo, hi): (f32, f32)) -> Option<Split> {
     if hi.partial_cmp(&lo) != Some(std::cmp::Ordering::Greater) {
         return None;
     }
@@ -379,6 +375,16 @@ mod tests {
     use super::*;
     use crate::rng::Rng;
 
+    /// The least and greatest finite values of `v` (`(∞, −∞)` when there are none), in a
+    /// pass of its own.
+    fn finite_range(v: &[f32]) -> (f32, f32) {
+        v.iter()
+            .filter(|x| x.is_finite())
+            .fold((f32::INFINITY, f32::NEG_INFINITY), |(lo, hi), &x| {
+                (if x < lo { x } else { lo }, if x > hi { x } else { hi })
+            })
+    }
+
     /// Marks of 1 ms every 7 ms (0.6 level over 0.05 idle), optionally AC-coupled and inverted.
     fn signal(rate: f64, secs: f64, tau_s: Option<f64>, invert: bool, noise: f64) -> Vec<f32> {
         let mut rng = Rng::new(3);
@@ -431,8 +437,13 @@ mod tests {
             ];
             let mut ring = Vec::new();
             let mut outs: [Vec<f32>; GROUP] = Default::default();
-            restore_smoothed(state, &y, alphas, k, &mut ring, &mut outs);
+            let ranges = restore_smoothed(state, &y, alphas, k, &mut ring, &mut outs);
             for (g, alpha) in alphas.into_iter().enumerate() {
+                assert_eq!(
+                    ranges[g],
+                    finite_range(&outs[g]),
+                    "candidate {g}, k {k}: range"
+                );
                 let mut want = Vec::new();
                 Restorer::restore(state, &y, alpha, &mut want);
                 if k > 1 {
