@@ -845,10 +845,11 @@ fn relax4(src: &[f32; 4], add: f32, dst: &mut [f32; 4], codes: &mut [Code; 4], c
 /// The table holds one row of [`States`] per grid position. Each position first settles its
 /// frame start (A), then pushes every element that can begin there into the rows where it
 /// ends: a header mark (A → H), a header space (H → B₀), a data symbol's space
-/// (E_{s,k} → B_k), a data symbol's mark (B_k → E_{s,k+1}) and the closing mark (B_K → C).
-/// The symbol steps move all bit counts at once, as runs of consecutive states. A cell keeps
-/// the first of equal candidates, in the order: position, then element kind as listed, then
-/// symbol, then length.
+/// (E_{s,k} → B_k), a data symbol's mark (B_k → E_{s,k+1}; in open frames also
+/// B_K → E_{s,K}) and the closing mark (B_K → C). The symbol steps move all bit counts at once,
+/// as runs of consecutive states ([`relax_lengths`]). A cell keeps the first of equal
+/// candidates, in the order: position, then element kind as listed, then symbol, then length
+/// (and of a data mark of one length into E_{s,K}, the one from B_{K−1} before B_K's).
 fn search_grid<M: MarkScores>(
     scores: &M,
     grid: &Grid,
@@ -886,7 +887,6 @@ fn search_grid<M: MarkScores>(
     // state `to` at its end (row `t + len` at `(t + len)·ns`): a mark adds its score, a space
     // nothing; the code is the length with `flags`. (Functions rather than closures, so
     // builds that inline little, as the fuzz targets', still inline them.)
-    #[allow(clippy::too_many_arguments)]
     #[inline(always)]
     fn lay<M: MarkScores>(
         (score, codes): (&mut [f32], &mut [Code]),
